@@ -18,7 +18,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Callable
 
-from figfolio import __version__, approval, audit, data, fingerprint
+from figfolio import __version__, approval
 from figfolio.cache import Cache, Entry
 from figfolio.errors import DataScreenError, FigfolioError
 from figfolio.executor import make_executor
@@ -26,6 +26,14 @@ from figfolio.progress import Progress
 from figfolio.recipe import Recipe, discover
 from figfolio.runner import Job, Output, RunResult
 from figfolio.settings import Settings
+
+TIMINGS: dict[str, float] = {}
+
+
+def _timed(name: str, seconds: float) -> None:
+    """Add to the per-step time of this pass (printed by the benchmark)."""
+    TIMINGS[name] = TIMINGS.get(name, 0.0) + seconds
+
 
 UNSTABLE_CAUSES = ("unseeded random numbers, the clock or today's date, dictionary or set "
                    "ordering, file-system listing order, parallel reductions")
@@ -72,6 +80,7 @@ class Report:
     ran: int
     cached: int
     site: Path | None = None
+    timings: dict[str, float] = field(default_factory=dict)
 
     def counts(self) -> dict[str, int]:
         out: dict[str, int] = {}
@@ -95,19 +104,24 @@ def source_revision(root: Path) -> str | None:
         return None
 
 
-def screen_all(recipes: list[Recipe], settings: Settings) -> list[Any]:
-    """Every unacknowledged data-screen finding that must stop publishing."""
-    blocking = []
+def screen_all(recipes: list[Recipe], settings: Settings) -> str:
+    """The data-screen report of every recipe with a finding that must stop publishing."""
+    from figfolio import screen
+
+    blocks = []
     for recipe in recipes:
-        for finding in data.screen_recipe(recipe, settings):
-            if not finding.acknowledged and recipe.publishes_data:
-                blocking.append(finding)
-    return blocking
+        findings = screen.screen_recipe(recipe, settings)
+        if any(f.blocking for f in findings):
+            rel = recipe.toml_path.relative_to(settings.root)
+            blocks.append(f"{recipe.slug}:\n" + screen.format_findings(findings, rel))
+    return "\n".join(blocks)
 
 
 def _stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path
            ) -> dict[str, Any]:
     """Move a run's outputs into ``staging`` and derive digests, thumbnails and the audit."""
+    from figfolio import audit, data, fingerprint
+
     staging.mkdir(parents=True, exist_ok=True)
     images: dict[str, dict[str, Any]] = {}
     outputs: list[Output] = []
@@ -136,8 +150,10 @@ def _stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path
             result.reason = f"{out.name}: {exc.message}"
     audit_dir = staging / "audit"
     audit_dir.mkdir(exist_ok=True)
+    t0 = time.perf_counter()
     findings = audit.audit_recipe(recipe, settings, [o.to_dict() for o in outputs],
                                   result.facts, audit_dir)
+    _timed("audit", time.perf_counter() - t0)
     findings["images"] = {fig: {kind: Path(p).relative_to(staging).as_posix()
                                 for kind, p in kinds.items()}
                           for fig, kinds in findings.get("images", {}).items()}
@@ -154,6 +170,8 @@ def _stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path
 
 def _outcome(recipe: Recipe, entry: Entry, from_cache: bool, settings: Settings,
              cache: Cache, unstable: dict[str, str]) -> Outcome:
+    from figfolio import fingerprint
+
     record = entry.record
     result = RunResult.from_dict(record["run"])
     for out in result.outputs:
@@ -181,6 +199,8 @@ def _outcome(recipe: Recipe, entry: Entry, from_cache: bool, settings: Settings,
 
 def _compare_rounds(first: RunResult, others: list[RunResult]) -> dict[str, str]:
     """Names of outputs whose pixels (PNG) or bytes differ between repeated runs."""
+    from figfolio import fingerprint
+
     unstable: dict[str, str] = {}
     base = {o.name: o for o in first.outputs}
     for k, other in enumerate(others, start=2):
@@ -210,13 +230,17 @@ def _compare_rounds(first: RunResult, others: list[RunResult]) -> dict[str, str]
 def run_pass(settings: Settings, options: Options) -> Report:
     """Plan, execute, fingerprint, audit and judge; publish the site when asked."""
     started = time.perf_counter()
+    TIMINGS.clear()
+    if settings.audit.errors:
+        from figfolio import audit
+        audit.check_error_codes(settings)
     recipes, problems = discover(settings, options.slugs or None)
     if recipes:
         blocking = screen_all(recipes, settings)
         if blocking:
             raise DataScreenError(
-                "the data screen found likely identifiers that no recipe has acknowledged:\n"
-                + data.format_findings(blocking),
+                "the data screen found likely identifiers or small counts that no recipe has "
+                "acknowledged:\n" + blocking,
                 hint="remove or coarsen those columns, or acknowledge each one in the recipe's "
                      "[screen.acknowledged] with a reason; the screen is an aid, not a "
                      "guarantee: your data governance decides what may be shared")
@@ -231,8 +255,11 @@ def run_pass(settings: Settings, options: Options) -> Report:
             if options.slugs:  # a partial build still publishes every cached recipe
                 done = {o.recipe.slug for o in outcomes}
                 shown = outcomes + _cached_outcomes(settings, cache, done)
+            t0 = time.perf_counter()
             report.site = publish(settings, shown, options)
+            _timed("site", time.perf_counter() - t0)
     report.seconds = time.perf_counter() - started
+    report.timings = dict(TIMINGS, total=report.seconds)
     return report
 
 

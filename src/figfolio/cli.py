@@ -145,10 +145,13 @@ def _toml_string(value: str) -> str:
 
 
 def cmd_lint(args: argparse.Namespace) -> int:
-    from figfolio import data
+    from figfolio import data, screen
     from figfolio.recipe import discover
 
+    from figfolio import audit
+
     settings = _settings(args)
+    audit.check_error_codes(settings)
     recipes, problems = discover(settings, args.slugs or None)
     screen_lines = []
     for recipe in recipes:
@@ -156,12 +159,15 @@ def cmd_lint(args: argparse.Namespace) -> int:
             desc = data.describe_file(path, recipe, settings)
             for note in (desc or {}).get("notes", []) if recipe.publishes_data else []:
                 screen_lines.append(f"note: {recipe.rel(path)} ({recipe.slug}): {note}")
-        findings = [f for f in data.screen_recipe(recipe, settings)
-                    if not f.acknowledged and recipe.publishes_data]
+        findings = screen.screen_recipe(recipe, settings)
+        blocking = [f for f in findings if f.blocking]
         if findings:
-            screen_lines.append(data.format_findings(findings))
-            problems.append(FigfolioError(f"{len(findings)} data-screen finding(s)",
-                                          path=recipe.toml_path, key="screen.acknowledged"))
+            screen_lines.append(f"{recipe.slug}:\n" + screen.format_findings(
+                findings, recipe.toml_path.relative_to(settings.root)))
+        if blocking:
+            problems.append(FigfolioError(f"{len(blocking)} open data-screen finding(s)",
+                                          path=recipe.toml_path, key="screen.acknowledged",
+                                          hint="acknowledge each reviewed column with a reason"))
     for line in screen_lines:
         print(line)
     if problems:

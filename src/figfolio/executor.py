@@ -1,0 +1,279 @@
+"""Run many recipes: warm fork-server workers locally, or one fresh process per job.
+
+``LocalExecutor(jobs=N)`` starts N ``python -m figfolio.worker`` processes (see worker.py) and
+feeds them jobs, longest ``expected_seconds`` first, each to whichever worker is free. One
+builder thread per worker talks to it over its pipes. ``on_result`` is always called in the
+thread that called ``run()`` (results pass through a queue), so callers need no locks.
+
+A worker that dies or stops answering is killed with its recipe's process group and started
+again; the job it held is reported broken. ``spawn=True`` (automatic when ``os.fork`` is
+missing) starts one ``python -m figfolio.worker --one`` per job instead: slower, since every
+recipe pays for importing the rendering stack, but the containment is the same.
+
+``run_isolated(job, work)`` is the spawn path for one job; the Dask executor calls it on
+remote workers.
+"""
+from __future__ import annotations
+
+import os
+import pickle
+import queue
+import signal
+import subprocess
+import sys
+import threading
+import time
+from pathlib import Path
+from typing import Callable, Protocol
+
+from figfolio.errors import ExecutorError
+from figfolio.runner import Job, RunResult, broken
+
+# Beyond the recipe's own time-out: fork, kill and report take a moment; a worker that has not
+# answered by then is hung and gets replaced.
+GRACE_SECONDS = 30.0
+START_SECONDS = 120.0
+# One BLAS/OpenMP thread per recipe: N workers already use the cores, and a thread count that
+# follows the machine would make floating-point sums (and so pixels) machine-dependent.
+THREADS_ENV = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
+
+
+class Executor(Protocol):
+    def run(self, jobs: list[Job], work_root: Path, on_result: Callable[[RunResult], None]
+            ) -> None: ...
+
+    def close(self) -> None: ...
+
+
+def worker_env() -> dict[str, str]:
+    """Environment of a worker process: fixed hash seed and headless matplotlib."""
+    env = dict(os.environ)
+    env.update({"PYTHONHASHSEED": "0", "MPLBACKEND": "Agg", **THREADS_ENV})
+    return env
+
+
+def _kill_group(pid: int | None) -> None:
+    if pid is None:
+        return
+    try:
+        os.killpg(pid, signal.SIGKILL)
+    except (ProcessLookupError, PermissionError, OSError):
+        pass
+
+
+def run_isolated(job: Job, work: Path) -> RunResult:
+    """Run ``job`` in a fresh ``python -m figfolio.worker --one`` process, fully contained.
+
+    Same limits as the fork server (own process group, memory limit, no network, output cap,
+    time-out kill); outputs land in ``work/out/``. Never raises for a recipe failure.
+    """
+    from figfolio.containment import finish, supervise
+    from figfolio.runner_capture import snapshot
+
+    work = Path(work)
+    work.mkdir(parents=True, exist_ok=True)
+    (work / "job.pickle").write_bytes(pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL))
+    before = snapshot(job.folder)
+    try:
+        proc = subprocess.Popen([sys.executable, "-m", "figfolio.worker", "--one", str(work)],
+                                stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+                                stderr=subprocess.PIPE, env=worker_env(),
+                                start_new_session=True)
+    except OSError as exc:
+        return broken(job.slug, f"could not start a Python process: {exc}")
+    assert proc.stdout is not None and proc.stderr is not None
+    fds = {"stdout": os.dup(proc.stdout.fileno()), "stderr": os.dup(proc.stderr.fileno())}
+    proc.stdout.close()
+    proc.stderr.close()
+    outcome = supervise(proc.pid, fds, job.timeout, job.max_output_kb * 1024)
+    proc.returncode = outcome.status  # reaped by supervise; keep Popen from waiting again
+    return finish(job, work, outcome, before)
+
+
+class _Worker:
+    """One warm worker process and the pipes to it; used by one builder thread only."""
+
+    def __init__(self) -> None:
+        self.proc: subprocess.Popen[bytes] | None = None
+        self.child: int | None = None
+
+    def start(self) -> None:
+        from figfolio.worker import recv_frame
+
+        self.proc = subprocess.Popen([sys.executable, "-m", "figfolio.worker"],
+                                     stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                     stderr=subprocess.DEVNULL, env=worker_env(),
+                                     start_new_session=True)
+        assert self.proc.stdout is not None
+        kind, info = recv_frame(self.proc.stdout.fileno(), time.monotonic() + START_SECONDS)
+        if kind != "ready":
+            raise ExecutorError(f"a figfolio worker answered {kind!r} instead of 'ready'")
+        self.warm_seconds = float(info.get("warm_seconds", 0.0))
+
+    def run(self, job: Job, work: Path) -> RunResult:
+        """Send one job and wait for its result; a dead or hung worker is replaced."""
+        from figfolio.worker import ProtocolEOF, recv_frame, send_frame
+
+        if self.proc is None or self.proc.poll() is not None:
+            self.start()
+        assert self.proc is not None and self.proc.stdin and self.proc.stdout
+        deadline = time.monotonic() + job.timeout + GRACE_SECONDS
+        self.child = None
+        try:
+            send_frame(self.proc.stdin.fileno(), (job, str(work)))
+            while True:
+                kind, payload = recv_frame(self.proc.stdout.fileno(), deadline)
+                if kind == "started":
+                    self.child = int(payload)
+                elif kind == "result":
+                    self.child = None
+                    return RunResult.from_dict(payload)
+        except (ProtocolEOF, TimeoutError, OSError, pickle.UnpicklingError, EOFError) as exc:
+            return broken(job.slug, self._lost(exc))
+
+    def _lost(self, exc: BaseException) -> str:
+        """Kill the worker and its recipe, say what happened; the next job restarts it."""
+        hung = isinstance(exc, TimeoutError)
+        _kill_group(self.child)
+        code = self.stop()
+        if hung:
+            return "the figfolio worker stopped answering while running this recipe; " \
+                   "it was restarted"
+        how = f"signal {signal.Signals(-code).name}" if code is not None and code < 0 \
+            else f"exit status {code}"
+        return f"the figfolio worker process died ({how}) while running this recipe; " \
+               "it was restarted"
+
+    def stop(self) -> int | None:
+        """End the worker (closing stdin first, so it leaves on its own when it can)."""
+        if self.proc is None:
+            return None
+        proc, self.proc = self.proc, None
+        for stream in (proc.stdin, proc.stdout):
+            try:
+                if stream:
+                    stream.close()
+            except OSError:
+                pass
+        try:
+            return proc.wait(timeout=2)
+        except subprocess.TimeoutExpired:
+            _kill_group(proc.pid)
+            return proc.wait()
+
+
+class LocalExecutor:
+    """N warm workers on this machine (or one process per job with ``spawn=True``)."""
+
+    def __init__(self, jobs: int = 1, spawn: bool | None = None) -> None:
+        self.jobs = max(1, int(jobs))
+        self.spawn = (not hasattr(os, "fork")) if spawn is None else spawn
+        self._workers: list[_Worker] = []
+
+    def run(self, jobs: list[Job], work_root: Path, on_result: Callable[[RunResult], None]
+            ) -> None:
+        """Run every job; ``on_result`` is called in this thread, once per job."""
+        work_root = Path(work_root)
+        work_root.mkdir(parents=True, exist_ok=True)
+        todo: queue.Queue[tuple[Job, Path]] = queue.Queue()
+        for job, work in _plan(jobs, work_root):
+            todo.put((job, work))
+        done: queue.Queue[RunResult] = queue.Queue()
+        count = min(self.jobs, len(jobs))
+        while len(self._workers) < count:
+            self._workers.append(_Worker())
+        threads = [threading.Thread(target=self._drain, args=(todo, done, self._workers[i]),
+                                    name=f"figfolio-worker-{i}", daemon=True)
+                   for i in range(count)]
+        for thread in threads:
+            thread.start()
+        try:
+            for _ in range(len(jobs)):
+                on_result(done.get())
+        except BaseException:  # Ctrl-C or a failing callback: stop everything now
+            _empty(todo)
+            self._abort(count)
+            raise
+        finally:
+            for thread in threads:
+                thread.join()
+
+    def _drain(self, todo: queue.Queue[tuple[Job, Path]], done: queue.Queue[RunResult],
+               worker: _Worker) -> None:
+        while True:
+            try:
+                job, work = todo.get_nowait()
+            except queue.Empty:
+                return
+            done.put(self._one(job, work, worker))
+
+    def _one(self, job: Job, work: Path, worker: _Worker) -> RunResult:
+        try:
+            return run_isolated(job, work) if self.spawn else worker.run(job, work)
+        except Exception as exc:  # a failure to start a worker must not hang run()
+            worker.stop()
+            return broken(job.slug, f"figfolio could not run this recipe: "
+                                    f"{type(exc).__name__}: {exc}")
+
+    def _abort(self, count: int) -> None:
+        """Kill running recipes and their workers so the builder threads return at once."""
+        for worker in self._workers[:count]:
+            _kill_group(worker.child)
+            worker.stop()
+
+    def close(self) -> None:
+        for worker in self._workers:
+            worker.stop()
+        self._workers = []
+
+    def __enter__(self) -> "LocalExecutor":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+
+def _empty(todo: queue.Queue[tuple[Job, Path]]) -> None:
+    while True:
+        try:
+            todo.get_nowait()
+        except queue.Empty:
+            return
+
+
+def _plan(jobs: list[Job], work_root: Path) -> list[tuple[Job, Path]]:
+    """Longest expected first; each job gets a fresh ``work_root/<slug>`` (``<slug>~2``...)."""
+    ordered = sorted(jobs, key=lambda j: -j.expected_seconds)
+    planned: list[tuple[Job, Path]] = []
+    for job in ordered:
+        work = work_root / job.slug
+        k = 2
+        while work.exists() or any(work == w for _, w in planned):
+            work = work_root / f"{job.slug}~{k}"
+            k += 1
+        planned.append((job, work))
+    return planned
+
+
+def make_executor(settings: object, name: str | None = None, scheduler: str | None = None,
+                  jobs: int | None = None) -> Executor:
+    """The executor the settings (or the command line) ask for."""
+    chosen = name or getattr(settings, "executor", "local") or "local"
+    if chosen == "local":
+        count = jobs or getattr(settings, "job_count", None) or (os.cpu_count() or 1)
+        return LocalExecutor(jobs=count)
+    if chosen == "dask":
+        address = scheduler or getattr(settings, "scheduler", "") or ""
+        try:
+            from figfolio.dask_executor import DaskExecutor  # type: ignore[import-not-found]
+        except ImportError as exc:
+            raise ExecutorError(f"the Dask executor is not available ({exc})", key="executor",
+                                hint="install figfolio[dask], or use executor = \"local\"") from exc
+        if not address:
+            raise ExecutorError("the Dask executor needs a scheduler address", key="scheduler",
+                                hint="pass --scheduler tcp://HOST:8786 or set scheduler in the "
+                                     "settings")
+        return DaskExecutor(address)
+    raise ExecutorError(f"unknown executor '{chosen}'", key="executor",
+                        hint="use \"local\" or \"dask\"")
+

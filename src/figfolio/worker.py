@@ -1,0 +1,192 @@
+"""The warm worker: imports the rendering stack once, then forks one child per recipe.
+
+Started by ``executor.LocalExecutor`` as ``python -m figfolio.worker`` with PYTHONHASHSEED=0
+(the hash seed is fixed when an interpreter starts, so it must be set here, not in the child).
+Why fork from a warm process: importing numpy, pandas and matplotlib and loading the font list
+costs about a second; a forked child gets them for free and still cannot disturb the next
+recipe, because it dies afterwards.
+
+Protocol on stdin/stdout, one frame = 8-byte big-endian length + pickle:
+  worker -> builder  ("ready", {"pid", "warm_seconds"})
+  builder -> worker  (Job, work_dir)
+  worker -> builder  ("started", child_pid)  then  ("result", RunResult dict)
+EOF on stdin ends the worker. ``python -m figfolio.worker --one WORK`` runs the single job
+pickled in ``WORK/job.pickle`` in this very process (spawn mode, for platforms without fork).
+"""
+from __future__ import annotations
+
+import os
+import pickle
+import select
+import sys
+import time
+import traceback
+from pathlib import Path
+from typing import Any
+
+HEADER = 8
+JOB_FILE = "job.pickle"
+
+
+class ProtocolEOF(Exception):
+    """The other side closed the pipe."""
+
+
+def send_frame(fd: int, message: Any) -> None:
+    """Write one length-prefixed pickle frame, all of it."""
+    data = pickle.dumps(message, protocol=pickle.HIGHEST_PROTOCOL)
+    view = memoryview(len(data).to_bytes(HEADER, "big") + data)
+    while view:
+        written = os.write(fd, view)
+        view = view[written:]
+
+
+def _read_exact(fd: int, size: int, deadline: float | None) -> bytes:
+    chunks = bytearray()
+    while len(chunks) < size:
+        if deadline is not None:
+            left = deadline - time.monotonic()
+            if left <= 0 or not select.select([fd], [], [], left)[0]:
+                raise TimeoutError("no answer from the worker in time")
+        data = os.read(fd, min(size - len(chunks), 1 << 20))
+        if not data:
+            raise ProtocolEOF("pipe closed")
+        chunks += data
+    return bytes(chunks)
+
+
+def recv_frame(fd: int, deadline: float | None = None) -> Any:
+    """Read one frame; ProtocolEOF when the pipe closed, TimeoutError after ``deadline``."""
+    size = int.from_bytes(_read_exact(fd, HEADER, deadline), "big")
+    return pickle.loads(_read_exact(fd, size, deadline))
+
+
+def warm_up() -> float:
+    """Import what nearly every recipe imports, and build matplotlib's font list once."""
+    start = time.perf_counter()
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.font_manager
+    import matplotlib.pyplot  # noqa: F401
+    import numpy  # noqa: F401
+    import pandas  # noqa: F401
+    import PIL.Image  # noqa: F401
+
+    import figfolio.containment  # noqa: F401
+    import figfolio.runner  # noqa: F401
+    import figfolio.runner_capture  # noqa: F401
+    matplotlib.font_manager.fontManager.findfont("DejaVu Sans")
+    _render_once()
+    figfolio.runner_capture.distribution_owners()
+    try:
+        import figfolio.audit  # noqa: F401
+    except Exception:  # the audit module is optional for the runner
+        pass
+    return time.perf_counter() - start
+
+
+def _render_once() -> None:
+    """Draw and save a tiny figure in every format: loads fonts and writers into the parent."""
+    import io
+
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=(1, 1))
+    ax.plot([0, 1], [0, 1], label="warm")
+    ax.set_title("warm-up $x^2$")
+    ax.legend()
+    for fmt in ("png", "svg", "pdf"):
+        fig.savefig(io.BytesIO(), format=fmt)
+    plt.close("all")
+
+
+def run_forked(job: Any, work: Path, private_fds: list[int], on_start: Any) -> dict[str, Any]:
+    """Fork a child for ``job``, supervise it, and return the RunResult as a dict."""
+    from figfolio.containment import finish, supervise
+    from figfolio.runner_capture import snapshot
+
+    work.mkdir(parents=True, exist_ok=True)
+    before = snapshot(job.folder)
+    out_r, out_w = os.pipe()
+    err_r, err_w = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # the child never returns from here
+        _child(job, work, out_w, err_w, [out_r, err_r, *private_fds])
+    os.close(out_w)
+    os.close(err_w)
+    on_start(pid)
+    outcome = supervise(pid, {"stdout": out_r, "stderr": err_r}, job.timeout,
+                        job.max_output_kb * 1024)
+    return finish(job, work, outcome, before).to_dict()
+
+
+def _child(job: Any, work: Path, out_w: int, err_w: int, close: list[int]) -> None:
+    """In the forked child: own session, fds onto the pipes, run, and _exit without cleanup."""
+    import signal
+
+    code = 70
+    try:
+        os.setsid()
+        for sig in (signal.SIGINT, signal.SIGTERM, signal.SIGPIPE):
+            signal.signal(sig, signal.SIG_DFL)
+        for fd in close:
+            os.close(fd)
+        null = os.open(os.devnull, os.O_RDONLY)
+        os.dup2(null, 0)
+        os.dup2(out_w, 1)
+        os.dup2(err_w, 2)
+        for fd in (null, out_w, err_w):
+            os.close(fd)
+        from figfolio.containment import child_body
+        code = child_body(job, work)
+    except BaseException:  # noqa: BLE001 - report and leave; never return into the worker
+        traceback.print_exc()
+    finally:
+        for stream in (sys.stdout, sys.stderr):
+            try:
+                stream.flush()
+            except Exception:
+                pass
+        os._exit(code)
+
+
+def serve() -> int:
+    """The fork-server loop: read a job, fork, answer, until stdin closes."""
+    proto_out = os.dup(1)
+    os.dup2(2, 1)  # stray prints from imports must not corrupt the protocol
+    warm = warm_up()
+    send_frame(proto_out, ("ready", {"pid": os.getpid(), "warm_seconds": warm}))
+    while True:
+        try:
+            job, work = recv_frame(0)
+        except ProtocolEOF:
+            return 0
+        try:
+            result = run_forked(job, Path(work), [0, proto_out],
+                                lambda pid: send_frame(proto_out, ("started", pid)))
+        except Exception as exc:  # a worker bug: report it as this job's failure, keep serving
+            from figfolio.runner import broken
+            result = broken(job.slug, f"figfolio worker error: {type(exc).__name__}: {exc}",
+                            traceback=traceback.format_exc()).to_dict()
+        send_frame(proto_out, ("result", result))
+
+
+def run_one(work: Path) -> int:
+    """Spawn mode: run the pickled job of ``work`` here; the parent supervises this process."""
+    from figfolio.containment import child_body
+
+    job = pickle.loads((work / JOB_FILE).read_bytes())
+    return child_body(job, work)
+
+
+def main(argv: list[str]) -> int:
+    if argv[:1] == ["--one"] and len(argv) == 2:
+        return run_one(Path(argv[1]))
+    if argv:
+        print("usage: python -m figfolio.worker [--one WORK_DIR]", file=sys.stderr)
+        return 2
+    return serve()
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))

@@ -1,0 +1,5 @@
+"""Sends SIGKILL to its own process."""
+import os
+import signal
+
+os.kill(os.getpid(), signal.SIGKILL)
