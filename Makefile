@@ -12,7 +12,7 @@ $(BIN)/python:
 	$(BIN)/pip install --quiet --upgrade pip
 
 venv: $(BIN)/python
-	$(BIN)/pip install --quiet -e '.[demo]'
+	$(BIN)/pip install --quiet -c constraints.txt -e '.[demo]'
 
 demo: venv
 	$(BIN)/figfolio build
@@ -22,7 +22,7 @@ system:
 	bash scripts/install-system-packages
 
 test-env: $(BIN)/python system
-	$(BIN)/pip install --quiet -e '.[test]'
+	$(BIN)/pip install --quiet -c constraints.txt -e '.[test]'
 	cd tests/browser && npm ci --no-audit --no-fund --silent
 
 test: test-env

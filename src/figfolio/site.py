@@ -1,0 +1,198 @@
+"""Publish the catalogue site: ``publish(view, settings, out)``.
+
+The view (built by build.py) is untrusted text plus paths to files already produced. This
+module renders the theme (catalogue ``site_template/`` over the default, file by file), copies
+the files every page links to, writes ``search-index.js`` and the per-recipe zips, all into a
+temporary sibling folder that is swapped in whole by renames, so a failed or killed build
+never leaves half a site behind.
+
+Incremental: with ``changed_slugs`` only those recipe pages, pages whose neighbours (related or
+previous/next) changed, the index, the report and the contribute page are rendered; every other
+``r/<slug>/`` folder is hard-linked from the previous site. A small manifest
+(``.figfolio-site.json``) records each page's "signature" (theme, neighbours) so a page whose
+surroundings changed is re-rendered even if its own recipe did not.
+"""
+from __future__ import annotations
+
+import hashlib
+import json
+import shutil
+from pathlib import Path
+from typing import Any, Iterable
+
+from jinja2 import Environment
+
+import figfolio
+from figfolio import markup
+from figfolio.recipe import SLUG
+from figfolio.settings import Settings
+from figfolio.site_files import (SiteError, copy_file, link_tree, swap_in, temp_site_folder,
+                                 write_text)
+from figfolio.site_pages import card, place_recipe, recipe_context, related_map, report_rows
+from figfolio.site_render import make_env, render, theme_folders
+from figfolio.site_search import build_index, entry_facets, index_script
+
+CSP = ("default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' data:; "
+       "object-src 'none'; base-uri 'none'; form-action 'none'")
+MANIFEST = ".figfolio-site.json"
+FACET_TITLES = {"tag": "Tags", "method": "Methods", "verdict": "Verdict",
+                "origin": "Data origin", "audit": "Audit findings"}
+
+
+def publish(view: dict[str, Any], settings: Settings, out: Path, *,
+            changed_slugs: Iterable[str] | None = None) -> None:
+    """Write the whole site for ``view`` to ``out`` (atomically replacing what was there)."""
+    entries = list(view.get("recipes") or [])
+    _check_slugs(entries)
+    env = make_env(settings.root)
+    tmp = temp_site_folder(out)
+    try:
+        _write_assets(settings.root, tmp / "assets")
+        common = _common(view)
+        signatures = _signatures(entries, settings.root, common)
+        reuse = _reusable(out, signatures, entries, changed_slugs)
+        _write_recipes(env, entries, common, tmp, out, reuse)
+        _write_top_pages(env, view, entries, common, tmp)
+        write_text(tmp / MANIFEST, json.dumps({"pages": signatures}, indent=1, sort_keys=True))
+        swap_in(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+
+
+def _check_slugs(entries: list[dict[str, Any]]) -> None:
+    seen: set[str] = set()
+    for entry in entries:
+        slug = str(entry.get("slug", ""))
+        if not SLUG.match(slug) or slug in seen:
+            raise SiteError(f"recipe slug {slug!r} is empty, unsafe or repeated", key="slug",
+                            hint="slugs are lowercase letters, digits and hyphens, one per recipe")
+        seen.add(slug)
+
+
+def _write_assets(root: Path, dest: Path) -> None:
+    """Default theme's static files, then the catalogue's (the catalogue file wins)."""
+    for folder in reversed(theme_folders(root)):
+        static = folder / "static"
+        for path in sorted(static.rglob("*")) if static.is_dir() else []:
+            if path.is_file():
+                copy_file(path, dest / path.relative_to(static))
+
+
+def _common(view: dict[str, Any]) -> dict[str, Any]:
+    report = view.get("report") or {}
+    return {"site": {"title": view.get("title") or "Figure catalogue",
+                     "description": view.get("description") or "",
+                     "build_date": _human_date(view.get("build_date")),
+                     "build_iso": str(view.get("build_date") or ""),
+                     "revision": view.get("revision"),
+                     "version": view.get("figfolio_version") or figfolio.__version__,
+                     "report": report, "counts": report.get("counts") or {}},
+            "csp": CSP}
+
+
+def _human_date(value: Any) -> str:
+    text = str(value or "")
+    return text.replace("T", " ").replace("Z", " UTC")[:20].strip() if text else ""
+
+
+def _theme_digest(root: Path) -> str:
+    digest = hashlib.sha256()
+    for folder in theme_folders(root):
+        for path in sorted(p for p in folder.rglob("*") if p.is_file()):
+            digest.update(str(path.relative_to(folder)).encode() + b"\0" + path.read_bytes())
+    return digest.hexdigest()
+
+
+def _neighbours(entries: list[dict[str, Any]]) -> dict[str, dict[str, Any]]:
+    related = related_map(entries)
+    by_slug = {e["slug"]: e for e in entries}
+    result = {}
+    for i, entry in enumerate(entries):
+        result[entry["slug"]] = {
+            "related": [by_slug[s] for s in related[entry["slug"]]],
+            "prev": entries[i - 1] if i > 0 else None,
+            "next": entries[i + 1] if i + 1 < len(entries) else None}
+    return result
+
+
+def _signatures(entries: list[dict[str, Any]], root: Path, common: dict[str, Any]) -> dict[str, str]:
+    """Per page: a digest of what the page shows *besides* its own recipe."""
+    theme = _theme_digest(root)
+    neighbours = _neighbours(entries)
+    out = {}
+    for entry in entries:
+        near = neighbours[entry["slug"]]
+        brief = [[o["slug"], o.get("title"), o.get("summary")] if o else None
+                 for o in [*near["related"], near["prev"], near["next"]]]
+        blob = json.dumps([theme, common["site"]["title"], common["site"]["version"], brief],
+                          default=str)
+        out[entry["slug"]] = hashlib.sha256(blob.encode()).hexdigest()
+    return out
+
+
+def _reusable(out: Path, signatures: dict[str, str], entries: list[dict[str, Any]],
+              changed: Iterable[str] | None) -> set[str]:
+    """Slugs whose folder can be hard-linked from the previous site unchanged."""
+    if changed is None or not (out / MANIFEST).is_file():
+        return set()
+    try:
+        old = json.loads((out / MANIFEST).read_text(encoding="utf-8")).get("pages", {})
+    except (OSError, ValueError):
+        return set()
+    changed = set(changed)
+    return {e["slug"] for e in entries
+            if e["slug"] not in changed and old.get(e["slug"]) == signatures[e["slug"]]
+            and (out / "r" / e["slug"] / "index.html").is_file()}
+
+
+def _write_recipes(env: Environment, entries: list[dict[str, Any]], common: dict[str, Any],
+                   tmp: Path, old_site: Path, reuse: set[str]) -> None:
+    neighbours = _neighbours(entries)
+    for entry in entries:
+        slug = entry["slug"]
+        folder = tmp / "r" / slug
+        if slug in reuse:
+            link_tree(old_site / "r" / slug, folder)
+            continue
+        folder.mkdir(parents=True)
+        place_recipe(entry, folder)
+        near = neighbours[slug]
+        context = dict(common, root="../../", page="recipe",
+                       **recipe_context(entry, near["related"], near["prev"], near["next"]))
+        write_text(folder / "index.html", render(env, "layouts/recipe.html", context))
+
+
+def _facet_groups(entries: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Facet values with their counts over the whole catalogue (JS updates them live)."""
+    counts: dict[str, dict[str, int]] = {k: {} for k in FACET_TITLES}
+    for entry in entries:
+        for group, values in entry_facets(entry).items():
+            for value in values:
+                counts[group][value] = counts[group].get(value, 0) + 1
+    return [{"key": key, "title": title,
+             "values": sorted(counts[key].items(), key=lambda kv: (-kv[1], kv[0].lower()))}
+            for key, title in FACET_TITLES.items() if counts[key]]
+
+
+def _contribute_html(env: Environment, view: dict[str, Any]) -> str:
+    text = view.get("contribute_markdown")
+    if text is None:  # the theme's default text (a catalogue can override the file too)
+        text = env.loader.get_source(env, "content/contribute.md")[0]  # type: ignore[union-attr]
+    return markup.render_markdown(text)
+
+
+def _write_top_pages(env: Environment, view: dict[str, Any], entries: list[dict[str, Any]],
+                     common: dict[str, Any], tmp: Path) -> None:
+    top = dict(common, root="")
+    cards = [card(e, i) for i, e in enumerate(entries)]
+    pages = {
+        "index.html": ("layouts/index.html", dict(top, page="index", cards=cards,
+                                                  facets=_facet_groups(entries))),
+        "report.html": ("layouts/report.html", dict(top, page="report", **report_rows(entries))),
+        "contribute.html": ("layouts/contribute.html",
+                            dict(top, page="contribute", body=_contribute_html(env, view))),
+    }
+    for name, (template, context) in pages.items():
+        write_text(tmp / name, render(env, template, context))
+    write_text(tmp / "search-index.js", index_script(build_index(entries)))
