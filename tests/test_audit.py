@@ -16,6 +16,15 @@ import pytest  # noqa: E402
 from colorspacious import cspace_convert  # noqa: E402
 from PIL import Image  # noqa: E402
 
+
+@pytest.fixture(autouse=True)
+def _matplotlib_defaults():
+    """These tests reason about matplotlib's default sizes; start each from the defaults."""
+    with matplotlib.rc_context():
+        matplotlib.rcdefaults()
+        yield
+
+
 from figfolio.audit import CODES, audit_recipe, collect_facts, colormap_shape  # noqa: E402
 from figfolio.audit_pixels import simulate_image  # noqa: E402
 from figfolio.colour import rgb_to_hex  # noqa: E402

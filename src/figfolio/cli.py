@@ -200,8 +200,10 @@ def _run(args: argparse.Namespace, command: str) -> int:
     strict = getattr(args, "strict", False) or settings.strict
     _print_table(report, verbose=command == "verify")
     if command == "verify" and getattr(args, "junit", None):
-        approval.write_junit(args.junit, [(o.recipe.slug, o.rows) for o in report.outcomes],
-                             strict=strict)
+        approval.write_junit(args.junit, {o.recipe.slug: o.rows for o in report.outcomes},
+                             strict=strict,
+                             durations={o.recipe.slug: o.result.duration
+                                        for o in report.outcomes})
         print(f"JUnit XML: {args.junit}")
     for problem in report.problems:
         print(problem.render(), file=sys.stderr)
