@@ -97,10 +97,12 @@ class OutputVerdict:
     detail: str
     distance: int | None = None
     diff_image: Path | None = None
+    approved_image: Path | None = None
 
     def to_dict(self) -> dict[str, Any]:
         out = asdict(self)
         out["diff_image"] = str(self.diff_image) if self.diff_image else None
+        out["approved_image"] = str(self.approved_image) if self.approved_image else None
         return out
 
 

@@ -187,11 +187,12 @@ def _outcome(recipe: Recipe, entry: Entry, from_cache: bool, settings: Settings,
             new_path = entry.path(row.name)
             if row.name.endswith(".png") and new_path.is_file():
                 diff = entry.dir / "diff" / row.name
+                before = cache.image_for(old.get("exact", "")) if old else None
                 if not diff.is_file():
                     diff.parent.mkdir(exist_ok=True)
-                    before = cache.image_for(old.get("exact", "")) if old else None
                     fingerprint.diff_image(before, new_path, diff)
                 row.diff_image = diff
+                row.approved_image = before
     return Outcome(recipe=recipe, entry=entry, result=result, from_cache=from_cache,
                    images=record["images"], rows=rows, verdict=approval.recipe_verdict(rows),
                    audit=record.get("audit", {}), data=record.get("data", []))
@@ -452,7 +453,8 @@ def _entry(o: Outcome, index: int, revision: str | None) -> dict[str, Any]:
                         "path": Path(out.path), "verdict": row.verdict if row else "unapproved",
                         "detail": row.detail if row else "",
                         "width": facts.get("width"), "height": facts.get("height"),
-                        "diff_image": getattr(row, "diff_image", None) if row else None})
+                        "diff_image": getattr(row, "diff_image", None) if row else None,
+                        "approved_image": getattr(row, "approved_image", None) if row else None})
     thumbs = {}
     for facts in o.images.values():
         if facts.get("thumbs"):
