@@ -227,7 +227,9 @@ def _print_table(report, verbose: bool) -> None:
         else:
             rows.append((o.recipe.slug, "", o.verdict, o.result.reason))
         for f in o.audit.get("findings", []) if verbose else []:
-            rows.append((o.recipe.slug, f"figure {f.get('figure') or '-'}", f"audit {f['severity']}",
+            fig = f.get("figure")
+            where = f"figure {fig}" if isinstance(fig, int) else (str(fig) if fig else "-")
+            rows.append((o.recipe.slug, where, f"audit {f['severity']}",
                          f"{f['code']}: {f['message']}"))
         for w in o.result.warnings:
             rows.append((o.recipe.slug, "", "warning", w))

@@ -99,13 +99,27 @@ def _markdown() -> MarkdownIt:
 _IMG_WITHOUT_ALT = re.compile(r"<img(?![^>]*\salt=)")
 
 
-def render_markdown(text: str) -> str:
+def render_markdown(text: str, *, shift_headings: int = 0, drop_title: str | None = None) -> str:
     """Markdown (untrusted) -> safe HTML fragment.
 
     A raw ``<img>`` without ``alt`` gets ``alt=""`` after cleaning: HTML requires the
     attribute, and an image the author did not describe is best skipped by screen readers.
+    ``shift_headings`` moves Markdown headings down (a README's ``#`` becomes ``<h2>`` under
+    the page's own title), and a leading heading equal to ``drop_title`` is left out so the
+    page does not repeat its title.
     """
-    return _IMG_WITHOUT_ALT.sub('<img alt=""', sanitise_html(_markdown().render(text or "")))
+    md = _markdown()
+    tokens = md.parse(text or "")
+    if drop_title and len(tokens) >= 3 and tokens[0].type == "heading_open" \
+            and tokens[1].content.strip().lower() == drop_title.strip().lower():
+        tokens = tokens[3:]
+    if shift_headings:
+        for token in tokens:
+            if token.type in ("heading_open", "heading_close"):
+                level = min(int(token.tag[1]) + shift_headings, 6)
+                token.tag = f"h{level}"
+    html = md.renderer.render(tokens, md.options, {})
+    return _IMG_WITHOUT_ALT.sub('<img alt=""', sanitise_html(html))
 
 
 @lru_cache(maxsize=1)

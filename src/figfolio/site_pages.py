@@ -187,7 +187,8 @@ def recipe_context(entry: dict[str, Any], related: list[dict[str, Any]],
             "href": "../" + url(other["slug"], "index.html")}
     return {
         "entry": entry, "slug": slug, "figures": _figures(entry), "downloads": _downloads(entry),
-        "readme_html": markup.render_markdown(entry["readme_markdown"])
+        "readme_html": markup.render_markdown(entry["readme_markdown"], shift_headings=1,
+                                              drop_title=entry["title"])
         if entry.get("readme_markdown") else "",
         "code_html": markup.highlight_code(script_text, script_name),
         "script_name": script_name, "data_files": _data_files(entry),
