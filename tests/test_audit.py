@@ -288,3 +288,23 @@ def test_audit_cost_and_images(tmp_path: Path, capsys: pytest.CaptureFixture[str
         assert Image.open(path).width == 360
     assert set(codes(result)) <= set(CODES)
     assert all(f["figure"] in (1, None) for f in result["findings"])
+
+
+def styled_lines(first: str, second: str, style_a: str, style_b: str) -> plt.Figure:
+    fig, ax = plt.subplots(figsize=(6, 4))
+    ax.plot([0, 1, 2], [0, 1, 2], color=first, linestyle=style_a, label="a")
+    ax.plot([0, 1, 2], [2, 1, 0], color=second, linestyle=style_b, label="b")
+    ax.set_xlabel("week")
+    ax.set_ylabel("rate")
+    return fig
+
+
+def test_red_green_separated_by_line_style_is_not_flagged(tmp_path: Path) -> None:
+    # Redundant encoding (common practice): when the two groups also differ by line style,
+    # losing the red/green difference under deuteranopia does not lose the groups.
+    (tmp_path / "a").mkdir()
+    (tmp_path / "b").mkdir()
+    same = run_audit(styled_lines("#d62728", "#2ca02c", "-", "-"), tmp_path / "a")
+    assert {"cvd-deutan", "cvd-protan"} <= codes(same)
+    styled = run_audit(styled_lines("#d62728", "#2ca02c", "-", "--"), tmp_path / "b")
+    assert not {"cvd-deutan", "cvd-protan", "grayscale"} & codes(styled)

@@ -149,7 +149,8 @@ def _audit_one(facts: dict[str, Any] | None, png: Path | None, recipe: Any, sett
     if facts and facts.get("error"):
         notes.append(f"{name}: some facts could not be read ({facts['error']})")
     if useful and facts:
-        colours = [(c["hex"], c.get("label", "")) for c in facts.get("colours", [])]
+        colours = [(c["hex"], c.get("label", ""), tuple(c.get("cues", ())))
+                   for c in facts.get("colours", [])]
         for cmap in facts.get("colormaps", []):
             findings += _colormap_findings(cmap, figure)
         findings += _text_findings(facts, recipe, audit, figure, notes)
@@ -210,11 +211,28 @@ def _png_width(png: Path) -> int:
 
 # ---------------------------------------------------------------- colour
 
-def _name(code: str, label: str) -> str:
+def _name(code: str, label: str, *_cues: Any) -> str:
     return f"{code} ({label})" if label else code
 
 
-def colour_findings(colours: list[tuple[str, str]], threshold: float, severity: float,
+def _shape_separated(colours: list[tuple[Any, ...]]) -> Any:
+    """Pairs of colours whose artists never share a line style, marker or hatch.
+
+    Such a pair is told apart by shape as well as colour (redundant encoding, common practice
+    for colour-vision-safe figures), so losing the colour difference does not lose the groups.
+    Colours without recorded cues (pixels, collections) are never counted as separated.
+    """
+    n = len(colours)
+    cues = [set(c[2]) if len(c) > 2 and c[2] else set() for c in colours]
+    out = np.zeros((n, n), dtype=bool)
+    for i in range(n):
+        for j in range(i + 1, n):
+            if cues[i] and cues[j] and not cues[i] & cues[j]:
+                out[i, j] = out[j, i] = True
+    return out
+
+
+def colour_findings(colours: list[tuple[Any, ...]], threshold: float, severity: float,
                     figure: int | str | None) -> list[dict[str, Any]]:
     """CVD and grayscale findings for data colours given as (hex, label) pairs.
 
@@ -227,10 +245,10 @@ def colour_findings(colours: list[tuple[str, str]], threshold: float, severity: 
     """
     if len(colours) < 2:
         return []
-    rgb = np.array([hex_to_rgb(h) for h, _ in colours])
+    rgb = np.array([hex_to_rgb(c[0]) for c in colours])
     lab = srgb_to_lab(rgb)
     normal = _delta(lab)
-    distinct = np.triu(normal >= threshold, k=1)
+    distinct = np.triu(normal >= threshold, k=1) & ~_shape_separated(colours)
     coloured = chroma(rgb) >= MIN_HUE_CHROMA
     hue_distinct = distinct & (_delta(lab, hue_only=True) >= threshold) \
         & coloured[:, None] & coloured[None, :]

@@ -84,15 +84,19 @@ class _Palette:
         self.maps: dict[str, dict[str, Any]] = {}
 
     def add(self, rgba: Iterable[float], backdrop: np.ndarray, kind: str, label: str,
-            role: str) -> None:
+            role: str, cue: str | None = None) -> None:
+        """``cue``: the non-colour encoding of the artist (line style, marker, hatch), so the
+        audit can tell a pair that colour alone separates from one that shape also separates."""
         r, g, b, a = (float(v) for v in rgba)
         if a <= 0.02:
             return
         rgb = a * np.array([r, g, b]) + (1 - a) * backdrop  # what the reader actually sees
         code = rgb_to_hex(rgb)
         entry = self.colours.setdefault(code, {"hex": code, "kinds": [], "label": "",
-                                               "count": 0, "role": role})
+                                               "count": 0, "role": role, "cues": []})
         entry["count"] += 1
+        if cue is not None and cue not in entry["cues"]:
+            entry["cues"].append(cue)
         if kind not in entry["kinds"]:
             entry["kinds"].append(kind)
         if not entry["label"] and label and not label.startswith("_"):
@@ -149,15 +153,19 @@ def _line_colours(ax: Any, back: np.ndarray, palette: _Palette) -> None:
             continue
         alpha = line.get_alpha()
         label = str(line.get_label())
-        if line.get_linestyle() not in NONE_STYLES and line.get_linewidth() > 0:
-            palette.add(to_rgba(line.get_color(), alpha), back, "line", label, "line")
-        if str(line.get_marker()) not in NONE_STYLES:
+        drawn = line.get_linestyle() not in NONE_STYLES and line.get_linewidth() > 0
+        marked = str(line.get_marker()) not in NONE_STYLES
+        cue = f"line {line.get_linestyle() if drawn else 'none'}, marker " \
+              f"{line.get_marker() if marked else 'none'}"
+        if drawn:
+            palette.add(to_rgba(line.get_color(), alpha), back, "line", label, "line", cue)
+        if marked:
             face = line.get_markerfacecolor()
             if str(face).lower() != "none" and to_rgba(face)[3] > 0:
-                palette.add(to_rgba(face, alpha), back, "marker", label, "fill")
+                palette.add(to_rgba(face, alpha), back, "marker", label, "fill", cue)
             else:
                 palette.add(to_rgba(line.get_markeredgecolor(), alpha), back, "marker",
-                            label, "edge")
+                            label, "edge", cue)
 
 
 def _patch_colours(ax: Any, back: np.ndarray, palette: _Palette) -> None:
@@ -166,10 +174,11 @@ def _patch_colours(ax: Any, back: np.ndarray, palette: _Palette) -> None:
             continue
         kind, label = type(patch).__name__.lower(), str(patch.get_label())
         face = patch.get_facecolor()
+        cue = f"hatch {patch.get_hatch() or 'none'}, line {patch.get_linestyle()}"
         if patch.get_fill() and face[3] > 0.02:
-            palette.add(face, back, kind, label, "fill")
+            palette.add(face, back, kind, label, "fill", cue)
         elif patch.get_linewidth() > 0:
-            palette.add(patch.get_edgecolor(), back, kind, label, "edge")
+            palette.add(patch.get_edgecolor(), back, kind, label, "edge", cue)
 
 
 def _unique_rows(rgba: np.ndarray) -> np.ndarray:
