@@ -131,7 +131,7 @@ def _audit_one(facts: dict[str, Any] | None, png: Path | None, recipe: Any, sett
     audit = settings.audit
     findings: list[dict[str, Any]] = []
     notes: list[str] = []
-    name = f"figure {figure}"
+    name = f"figure {figure}" if isinstance(figure, int) else f"output '{figure}'"
     pixels = small = None
     width_px = 0
     useful = bool(facts and (facts.get("colours") or facts.get("colormaps")

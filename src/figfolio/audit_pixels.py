@@ -14,6 +14,7 @@ from PIL import Image
 
 from figfolio.colour import (CVD_KINDS, LUMA_709, as_rgb, chroma, ciede2000, cvd_matrix,
                              linear_to_srgb, rgb_to_hex, srgb_to_lab)
+from figfolio.fingerprint import recall
 
 IMAGE_KINDS = (*CVD_KINDS, "grayscale")
 PREVIEW_WIDTH = 360  # pixels: enough to judge a figure on the recipe page, cheap to make
@@ -30,10 +31,16 @@ _ENCODE_LUT = np.round(linear_to_srgb(np.linspace(0.0, 1.0, _ENCODE_STEPS)) * 25
 
 
 def load_rgb(png_path: Path, width: int | None = None) -> np.ndarray:
-    """The PNG as uint8 RGB composited over white paper, optionally shrunk to ``width``."""
-    with Image.open(png_path) as img:
-        img.load()
-        rgba = img.convert("RGBA")
+    """The PNG as uint8 RGB composited over white paper, optionally shrunk to ``width``.
+
+    Reuses the image the fingerprint step already decoded in this process (``fingerprint
+    .recall``) rather than decoding the file a second time.
+    """
+    rgba = recall(Path(png_path))
+    if rgba is None:
+        with Image.open(png_path) as img:
+            img.load()
+            rgba = img.convert("RGBA")
     if width and rgba.width > width:
         height = max(1, round(rgba.height * width / rgba.width))
         rgba = rgba.resize((width, height), Image.Resampling.BOX)

@@ -234,8 +234,7 @@ def _print_table(report, verbose: bool) -> None:
         for w in o.result.warnings:
             rows.append((o.recipe.slug, "", "warning", w))
         if o.result.status != "ok":
-            tail = (o.result.traceback or o.result.stderr_tail).strip().splitlines()[-3:]
-            for line in tail:
+            for line in _failure_tail(o.result.traceback or o.result.stderr_tail):
                 rows.append((o.recipe.slug, "", "", "  " + line))
     if rows:
         w0 = max(len(r[0]) for r in rows)
@@ -249,6 +248,36 @@ def _print_table(report, verbose: bool) -> None:
           f"outputs: {summary or 'none'}; {report.seconds:.1f} s")
     if report.site:
         print(f"site: {report.site / 'index.html'}")
+
+
+_FRAME = re.compile(r'^\s*File "([^"]+)", line \d+')
+_OWN_CODE = str(Path(__file__).resolve().parent)
+
+
+def _failure_tail(text: str, count: int = 3) -> list[str]:
+    """The last lines of a broken recipe's traceback, without figfolio's own frames.
+
+    Why: when figfolio itself stops a recipe (a canvas over ``max_pixels``) the exception is
+    raised inside figfolio's code; printing those frames makes the recipe's failure look like
+    a crash of figfolio, and the reason column already says what happened. Frames of the
+    recipe and of its libraries stay, so the user sees where their own code failed.
+    """
+    lines = text.strip().splitlines()
+    if lines and lines[-1].startswith("figfolio."):
+        return []
+    kept: list[str] = []
+    skipping = False
+    for line in lines:
+        frame = _FRAME.match(line)
+        if frame:
+            skipping = frame.group(1).startswith(_OWN_CODE)
+        elif skipping and line.startswith("    "):
+            continue
+        else:
+            skipping = False
+        if not skipping:
+            kept.append(line)
+    return kept[-count:]
 
 
 def cmd_build(args: argparse.Namespace) -> int:

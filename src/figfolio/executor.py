@@ -27,6 +27,7 @@ from pathlib import Path
 from typing import Callable, Protocol
 
 from figfolio.errors import ExecutorError
+from figfolio.poststep import POST_SECONDS
 from figfolio.runner import Job, RunResult, broken
 
 # Beyond the recipe's own time-out: fork, kill and report take a moment; a worker that has not
@@ -125,6 +126,9 @@ class _Worker:
                 kind, payload = recv_frame(self.proc.stdout.fileno(), deadline)
                 if kind == "started":
                     self.child = int(payload)
+                elif kind == "posting":  # the recipe is done; its post step has its own clock
+                    self.child = int(payload)
+                    deadline = time.monotonic() + POST_SECONDS + GRACE_SECONDS
                 elif kind == "result":
                     self.child = None
                     return RunResult.from_dict(payload)

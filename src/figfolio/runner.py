@@ -45,6 +45,9 @@ class Job:
     network: bool = False
     expected_seconds: float = 0.0  # from the cache; the executor runs long jobs first
     bundle: dict[str, bytes] | None = None  # relative path -> bytes, for remote workers
+    # poststep.PostSpec: a warm local worker stages the outputs (digests, thumbnails, audit,
+    # data summaries) in a fresh fork right after the run. None: the builder does it.
+    post: Any = None
 
     @classmethod
     def from_recipe(cls, recipe: Recipe, settings: Settings, expected_seconds: float = 0.0
@@ -57,7 +60,8 @@ class Job:
                    network=settings.network, expected_seconds=expected_seconds)
 
     def with_bundle(self) -> "Job":
-        """A copy that carries every file of the recipe folder as bytes."""
+        """A copy that carries every file of the recipe folder as bytes (and no post step:
+        a remote worker returns the raw outputs, and the builder stages them)."""
         root = Path(self.folder)
         files: dict[str, bytes] = {}
         for path in sorted(root.rglob("*")):
@@ -65,7 +69,7 @@ class Job:
             if path.is_file() and not path.is_symlink() and "__pycache__" not in rel.parts \
                     and rel.as_posix() != "fingerprints.json":
                 files[rel.as_posix()] = path.read_bytes()
-        return dataclasses.replace(self, bundle=files)
+        return dataclasses.replace(self, bundle=files, post=None)
 
 
 @dataclass
@@ -100,9 +104,13 @@ class RunResult:
     # last KBs); empty when everything fit in the tail.
     stdout_head: str = ""
     stderr_head: str = ""
+    # Set by a warm worker that already ran the post step: {"dir": staging folder, "record":
+    # cache record}. Transport only: never part of to_dict(), so never stored in a record.
+    staged: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         out = dataclasses.asdict(self)
+        out.pop("staged", None)
         return out
 
     @classmethod

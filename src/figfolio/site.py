@@ -31,17 +31,22 @@ from figfolio.site_files import (SiteError, copy_file, link_tree, swap_in, temp_
 from figfolio.site_pages import card, place_recipe, recipe_context, related_map, report_rows
 from figfolio.site_render import make_env, render, theme_folders
 from figfolio.site_search import build_index, entry_facets, index_script
+from figfolio.site_state import MANIFEST
 
 CSP = ("default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' data:; "
        "object-src 'none'; base-uri 'none'; form-action 'none'")
-MANIFEST = ".figfolio-site.json"
 FACET_TITLES = {"tag": "Tags", "method": "Methods", "verdict": "Verdict",
                 "origin": "Data origin", "audit": "Audit findings"}
 
 
 def publish(view: dict[str, Any], settings: Settings, out: Path, *,
-            changed_slugs: Iterable[str] | None = None) -> None:
-    """Write the whole site for ``view`` to ``out`` (atomically replacing what was there)."""
+            changed_slugs: Iterable[str] | None = None,
+            state: dict[str, Any] | None = None) -> None:
+    """Write the whole site for ``view`` to ``out`` (atomically replacing what was there).
+
+    ``state`` (from ``site_state.view_state``) is stored in the manifest, in the same swap as
+    the pages, so the next build can tell whether this site is still current.
+    """
     entries = list(view.get("recipes") or [])
     _check_slugs(entries)
     env = make_env(settings.root)
@@ -53,7 +58,10 @@ def publish(view: dict[str, Any], settings: Settings, out: Path, *,
         reuse = _reusable(out, signatures, entries, changed_slugs)
         _write_recipes(env, entries, common, tmp, out, reuse)
         _write_top_pages(env, view, entries, common, tmp)
-        write_text(tmp / MANIFEST, json.dumps({"pages": signatures}, indent=1, sort_keys=True))
+        manifest: dict[str, Any] = {"pages": signatures}
+        if state is not None:
+            manifest["state"] = state
+        write_text(tmp / MANIFEST, json.dumps(manifest, indent=1, sort_keys=True))
         swap_in(tmp, out)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)

@@ -160,7 +160,8 @@ def _audit_images(entry: dict[str, Any]) -> list[dict[str, Any]]:
                 size = image_size(Path(path)) or (None, None)
                 cells.append({"kind": AUDIT_WORDS[kind], "src": url_path(audit_file(figure, kind)),
                               "width": size[0], "height": size[1]})
-        groups.append({"figure": figure, "cells": cells})
+        label = int(figure) if str(figure).isdigit() else figure  # JSON keys are strings
+        groups.append({"figure": label, "cells": cells})
     return groups
 
 

@@ -9,7 +9,11 @@ recipe, because it dies afterwards.
 Protocol on stdin/stdout, one frame = 8-byte big-endian length + pickle:
   worker -> builder  ("ready", {"pid", "warm_seconds"})
   builder -> worker  (Job, work_dir)
-  worker -> builder  ("started", child_pid)  then  ("result", RunResult dict)
+  worker -> builder  ("started", child_pid)  then, when the job carries a post step,
+                     ("posting", post_pid), then  ("result", RunResult dict)
+The post step (poststep.py: digests, thumbnails, audit, data summaries) runs in a second fresh
+fork of this warm process after the recipe's child ended, so it uses the worker's core instead
+of the builder's main thread, and never runs in a process that recipe code touched.
 EOF on stdin ends the worker. ``python -m figfolio.worker --one WORK`` runs the single job
 pickled in ``WORK/job.pickle`` in this very process (spawn mode, for platforms without fork).
 """
@@ -82,7 +86,21 @@ def warm_up() -> float:
         import figfolio.audit  # noqa: F401
     except Exception:  # the audit module is optional for the runner
         pass
+    _warm_post()
     return time.perf_counter() - start
+
+
+def _warm_post() -> None:
+    """Import what the post step uses, so each post fork starts with it loaded."""
+    try:
+        import scipy.fft  # noqa: F401
+
+        import figfolio.data  # noqa: F401
+        import figfolio.poststep  # noqa: F401
+        from figfolio import fingerprint
+        fingerprint.thumb_suffix()  # loads Pillow's WebP plugin
+    except Exception:  # a missing piece only means the post fork imports it itself
+        pass
 
 
 def _render_once() -> None:
@@ -168,7 +186,20 @@ def serve() -> int:
             from figfolio.runner import broken
             result = broken(job.slug, f"figfolio worker error: {type(exc).__name__}: {exc}",
                             traceback=traceback.format_exc()).to_dict()
+        if getattr(job, "post", None) is not None:
+            result["staged"] = post_forked(result, job, Path(work), proto_out)
         send_frame(proto_out, ("result", result))
+
+
+def post_forked(result: dict[str, Any], job: Any, work: Path, proto_out: int
+                ) -> dict[str, Any] | None:
+    """Run the job's post step in a fresh fork; None (the builder does it) on any failure."""
+    try:
+        from figfolio.poststep import run_forked as post
+        return post(result, job.post, work,
+                    lambda pid: send_frame(proto_out, ("posting", pid)), [0, proto_out])
+    except Exception:  # noqa: BLE001 - the builder stages the result itself
+        return None
 
 
 def run_one(work: Path) -> int:
