@@ -59,8 +59,33 @@ def _attribute_filter(tag: str, attr: str, value: str) -> str | None:
     return value
 
 
+# One start tag of an anchor as nh3 (html5ever) serialises it: attribute values are always
+# double-quoted and never contain a raw '"', so this matches the whole tag exactly.
+_ANCHOR = re.compile(r'<a((?:\s+[^\s="]+="[^"]*")*)\s*>')
+_REL = re.compile(r'\s+rel="[^"]*"')
+
+
+def _drop_rel_without_href(html: str) -> str:
+    """Remove ``rel`` from anchors that have no ``href``.
+
+    Why: nh3 adds ``rel`` to every ``<a>``, also to one whose unsafe ``href`` it removed
+    (``javascript:``); the HTML Standard allows ``rel`` on ``<a>`` only with ``href``, so the
+    page would fail the Nu HTML Checker.
+    """
+    def fix(match: re.Match[str]) -> str:
+        attrs = match.group(1)
+        if re.search(r'\shref="', attrs):
+            return match.group(0)
+        return "<a" + _REL.sub("", attrs) + ">"
+    return _ANCHOR.sub(fix, html)
+
+
 def sanitise_html(html: str) -> str:
     """Clean an HTML fragment with the site's allow-list (see the module docstring)."""
+    return _drop_rel_without_href(_clean(html))
+
+
+def _clean(html: str) -> str:
     return nh3.clean(
         html,
         tags=ALLOWED_TAGS,
