@@ -97,6 +97,17 @@ for ax, col in zip(axes.flat, d.columns):
 plt.show()
 '''
 
+TINY = '''import pandas as pd
+import matplotlib.pyplot as plt
+
+d = pd.read_csv("data/values.csv")
+fig, ax = plt.subplots(figsize=(3, 2))
+ax.plot(d["a"].to_numpy()[:30], color="#009E73")
+ax.set_xlabel("Index")
+ax.set_ylabel("Value")
+plt.show()
+'''
+
 KINDS = [("small multiples", "ordinary least squares", SMALL_MULTIPLES),
          ("heat map", "hierarchical clustering", HEATMAP),
          ("scatter", "scatter plot", SCATTER),
@@ -135,7 +146,7 @@ def write_data(kind: str, folder: Path, rng: np.random.Generator, size: float) -
                                          for i, (e, s) in enumerate(zip(est, se))]
         (data / "studies.csv").write_text("\n".join(lines) + "\n")
     else:
-        n = int(30 + size * 20000)
+        n = int(30 + size * 50000)  # up to ~2 MB
         cols = [rng.gamma(2 + j, 1, n) for j in range(6)]
         lines = ["a,b,c,d,e,f"] + [",".join(f"{c[i]:.3f}" for c in cols) for i in range(n)]
         (data / "values.csv").write_text("\n".join(lines) + "\n")
@@ -143,7 +154,8 @@ def write_data(kind: str, folder: Path, rng: np.random.Generator, size: float) -
 
 def make_catalogue(root: Path, n: int, seed: int = 20261202, tiny: bool = False,
                    formats: tuple[str, ...] | None = None) -> Path:
-    """Create ``root`` with ``n`` recipes. ``tiny``: the smallest data and fastest kind."""
+    """Create ``root`` with ``n`` recipes. ``tiny``: one small line chart on ~1 KB of data,
+    for the scale run, where the cost of figfolio itself (not the figures) is measured."""
     if root.exists():
         shutil.rmtree(root)
     (root / "recipes").mkdir(parents=True)
@@ -153,7 +165,8 @@ def make_catalogue(root: Path, n: int, seed: int = 20261202, tiny: bool = False,
     (root / "figfolio.toml").write_text(settings)
     rng = np.random.default_rng(seed)
     for i in range(n):
-        kind, method, script = KINDS[4] if tiny else KINDS[i % len(KINDS)]
+        kind, method, script = ("tiny line", "line plot", TINY) if tiny \
+            else KINDS[i % len(KINDS)]
         slug = f"bench-{i:04d}"
         folder = root / "recipes" / slug
         folder.mkdir()
@@ -161,7 +174,7 @@ def make_catalogue(root: Path, n: int, seed: int = 20261202, tiny: bool = False,
                                                         i=i, method=method))
         (folder / "figure.py").write_text(script)
         size = 0.0 if tiny else float(rng.uniform(0, 1) ** 2)
-        write_data(kind, folder, rng, size)
+        write_data("histogram" if tiny else kind, folder, rng, size)
     return root
 
 

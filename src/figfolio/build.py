@@ -4,9 +4,19 @@ Why one module: ``build``, ``verify`` and ``approve`` are the same pipeline with
 endings, and the order of steps (screen before publish, cache before run, verdict after
 fingerprint) is the product's guarantee. Each step is delegated to the module that owns it;
 this file only decides what happens in which order and gathers the results.
+
+Where the time goes, and why the pass is shaped this way (benchmarks/bench_build.py measures
+it): recipes run in warm workers, longest expected first; each worker also stages its own
+results (digests, thumbnails, audit, data summaries; poststep.py), so the main thread only
+stores them. A pass where nothing changed stats files, reuses the screen verdicts of
+unchanged data, and publishes nothing when the site on disk was made from the same view
+(site_state.py); a pass with changes re-renders only the pages that show them. None of the
+no-op path imports numpy, pandas, matplotlib or Pillow.
 """
 from __future__ import annotations
 
+import dataclasses
+import hashlib
 import json
 import os
 import shutil
@@ -19,12 +29,14 @@ from pathlib import Path
 from typing import Any, Callable
 
 from figfolio import __version__, approval
-from figfolio.cache import Cache, Entry
+from figfolio.atomic import write_text
+from figfolio.cache import RECORD, Cache, Entry
 from figfolio.errors import DataScreenError, FigfolioError
 from figfolio.executor import make_executor
+from figfolio.poststep import PostSpec
 from figfolio.progress import Progress
 from figfolio.recipe import Recipe, discover
-from figfolio.runner import Job, Output, RunResult
+from figfolio.runner import Job, RunResult
 from figfolio.settings import Settings
 
 TIMINGS: dict[str, float] = {}
@@ -104,68 +116,73 @@ def source_revision(root: Path) -> str | None:
         return None
 
 
-def screen_all(recipes: list[Recipe], settings: Settings) -> str:
-    """The data-screen report of every recipe with a finding that must stop publishing."""
+SCREEN_PASSED = "screen-passed.json"
+
+
+def _screen_key(input_key: str, settings: Settings) -> str:
+    """What a recipe's screen result depends on: its files (the input key) and the settings."""
+    from dataclasses import asdict
+
+    blob = json.dumps([input_key, asdict(settings.screen), __version__], sort_keys=True,
+                      default=str)
+    return hashlib.sha256(blob.encode()).hexdigest()
+
+
+def screen_all(recipes: list[Recipe], settings: Settings, cache: Cache | None = None,
+               keys: dict[str, str] | None = None) -> str:
+    """The data-screen report of every recipe with a finding that must stop publishing.
+
+    With a cache and input keys, a recipe that passed the screen with exactly these files and
+    screen settings is not screened again (``build/cache/screen-passed.json``): reading every
+    data file of a thousand recipes would dominate a build where nothing changed. A recipe
+    with a blocking finding is never remembered, so its report is shown on every build.
+    """
+    known: dict[str, str] = {}
+    wanted: dict[str, str] = {}
+    if cache is not None and keys is not None:
+        known = _read_json(cache.path / SCREEN_PASSED)
+        wanted = {r.slug: _screen_key(keys[r.slug], settings) for r in recipes}
+    todo = [r for r in recipes if not wanted or known.get(r.slug) != wanted[r.slug]]
+    if not todo:
+        return ""
     from figfolio import screen
 
     blocks = []
-    for recipe in recipes:
+    passed: dict[str, str] = {}
+    for recipe in todo:
         findings = screen.screen_recipe(recipe, settings)
         if any(f.blocking for f in findings):
             rel = recipe.toml_path.relative_to(settings.root)
             blocks.append(f"{recipe.slug}:\n" + screen.format_findings(findings, rel))
+        elif wanted:
+            passed[recipe.slug] = wanted[recipe.slug]
+    if passed and cache is not None:
+        kept = {slug: key for slug, key in known.items() if slug in wanted}
+        write_text(cache.path / SCREEN_PASSED, json.dumps({**kept, **passed}, sort_keys=True))
     return "\n".join(blocks)
+
+
+def _read_json(path: Path) -> dict[str, Any]:
+    try:
+        value = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return value if isinstance(value, dict) else {}
 
 
 def _stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path
            ) -> dict[str, Any]:
-    """Move a run's outputs into ``staging`` and derive digests, thumbnails and the audit."""
-    from figfolio import audit, data, fingerprint
+    """Stage a run's outputs here, in the builder (spawn mode, Dask, or a failed post fork)."""
+    from figfolio import poststep
 
-    staging.mkdir(parents=True, exist_ok=True)
-    images: dict[str, dict[str, Any]] = {}
-    outputs: list[Output] = []
-    for out in result.outputs:
-        target = staging / out.name
-        shutil.move(out.path, target)
-        outputs.append(Output(out.name, out.format, out.figure, str(target)))
-    result.outputs = outputs
-    thumbs_done = False
-    for out in outputs:
-        path = Path(out.path)
-        try:
-            if out.format == "png":
-                facts = fingerprint.analyse_png(path, None if thumbs_done else staging / "thumbs")
-                thumbs = {str(k): Path(v).relative_to(staging).as_posix()
-                          for k, v in facts.thumbs.items()}
-                thumbs_done = thumbs_done or bool(thumbs)
-                images[out.name] = {"format": "png", "exact": facts.exact,
-                                    "perceptual": facts.perceptual, "width": facts.width,
-                                    "height": facts.height, "thumbs": thumbs}
-            else:
-                images[out.name] = {"format": out.format,
-                                    "exact": fingerprint.vector_digest(path)}
-        except FigfolioError as exc:
-            result.status = "broken"
-            result.reason = f"{out.name}: {exc.message}"
-    audit_dir = staging / "audit"
-    audit_dir.mkdir(exist_ok=True)
-    t0 = time.perf_counter()
-    findings = audit.audit_recipe(recipe, settings, [o.to_dict() for o in outputs],
-                                  result.facts, audit_dir)
-    _timed("audit", time.perf_counter() - t0)
-    findings["images"] = {fig: {kind: Path(p).relative_to(staging).as_posix()
-                                for kind, p in kinds.items()}
-                          for fig, kinds in findings.get("images", {}).items()}
-    described = []
-    for path in recipe.data:
-        desc = data.describe_file(path, recipe, settings) if recipe.publishes_data else None
-        described.append({"name": recipe.rel(path), "size": path.stat().st_size,
-                          "description": desc})
-    run = result.to_dict()
-    for out in run["outputs"]:
-        out["path"] = out["name"]
-    return {"run": run, "images": images, "audit": findings, "data": described}
+    return poststep.stage(result, recipe, settings, staging)
+
+
+def _add_timings(record: dict[str, Any]) -> None:
+    """Move the post step's timings out of the record into this pass's TIMINGS."""
+    for name, seconds in (record.pop("timings", None) or {}).items():
+        if isinstance(seconds, (int, float)):
+            _timed(name, float(seconds))
 
 
 def _outcome(recipe: Recipe, entry: Entry, from_cache: bool, settings: Settings,
@@ -235,9 +252,17 @@ def run_pass(settings: Settings, options: Options) -> Report:
     if settings.audit.errors:
         from figfolio import audit
         audit.check_error_codes(settings)
+    t0 = time.perf_counter()
     recipes, problems = discover(settings, options.slugs or None)
-    if recipes:
-        blocking = screen_all(recipes, settings)
+    _timed("discover", time.perf_counter() - t0)
+    cache = Cache(settings.cache_path)
+    with cache.lock():
+        t0 = time.perf_counter()
+        keys = {r.slug: cache.input_key(r, settings) for r in recipes}
+        _timed("plan", time.perf_counter() - t0)
+        t0 = time.perf_counter()
+        blocking = screen_all(recipes, settings, cache, keys) if recipes else ""
+        _timed("screen", time.perf_counter() - t0)
         if blocking:
             raise DataScreenError(
                 "the data screen found likely identifiers or small counts that no recipe has "
@@ -245,9 +270,9 @@ def run_pass(settings: Settings, options: Options) -> Report:
                 hint="remove or coarsen those columns, or acknowledge each one in the recipe's "
                      "[screen.acknowledged] with a reason; the screen is an aid, not a "
                      "guarantee: your data governance decides what may be shared")
-    cache = Cache(settings.cache_path)
-    with cache.lock():
-        outcomes, ran, cached = _execute(settings, options, recipes, cache)
+        t0 = time.perf_counter()
+        outcomes, ran, cached = _execute(settings, options, recipes, cache, keys)
+        _timed("execute", time.perf_counter() - t0)
         report = Report(outcomes=outcomes, problems=problems, ran=ran, cached=cached,
                         seconds=0.0)
         _write_last(settings, report, options)
@@ -264,9 +289,10 @@ def run_pass(settings: Settings, options: Options) -> Report:
     return report
 
 
-def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache: Cache
-             ) -> tuple[list[Outcome], int, int]:
-    keys = {r.slug: cache.input_key(r, settings) for r in recipes}
+def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache: Cache,
+             keys: dict[str, str] | None = None) -> tuple[list[Outcome], int, int]:
+    if keys is None:
+        keys = {r.slug: cache.input_key(r, settings) for r in recipes}
     entries: dict[str, Entry] = {}
     todo: list[Recipe] = []
     repeat = max(options.repeat, 1)
@@ -283,27 +309,28 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
     unstable: dict[str, dict[str, str]] = {}
     if todo:
         by_slug = {r.slug: r for r in todo}
-        jobs = [Job.from_recipe(r, settings, cache.last_run_seconds(r.slug)) for r in todo]
+        jobs = [Job.from_recipe(r, settings, _expected_seconds(r, cache)) for r in todo]
+        # Round 1 is staged (digests, thumbnails, audit, data summaries) by the warm workers
+        # in parallel; later --repeat rounds are only compared, so they need no post step.
+        staged_jobs = [dataclasses.replace(j, post=PostSpec(by_slug[j.slug], settings))
+                       for j in jobs]
         work = Path(tempfile.mkdtemp(prefix="work-", dir=_tmp_dir(cache)))
         executor = make_executor(settings, options.executor, options.scheduler,
-                                 jobs=options.jobs)
+                                 jobs=options.jobs, preload=imported_modules(todo))
         rounds: dict[str, list[RunResult]] = {r.slug: [] for r in todo}
         try:
             for k in range(repeat):
                 def collect(result: RunResult, k: int = k) -> None:
                     rounds[result.slug].append(result)
                     if k == 0:
-                        recipe = by_slug[result.slug]
-                        staging = Path(tempfile.mkdtemp(prefix="stage-", dir=_tmp_dir(cache)))
-                        record = _stage(result, recipe, settings, staging)
-                        entries[result.slug] = cache.store(result.slug, keys[result.slug],
-                                                           staging, record)
-                        shutil.rmtree(staging, ignore_errors=True)
+                        entries[result.slug] = _store(result, by_slug[result.slug], settings,
+                                                      cache, keys[result.slug])
                         if repeat == 1:
                             progress.step(result.slug, result.status)
                     elif k == repeat - 1:
                         progress.step(result.slug, result.status)
-                executor.run(jobs, work / f"round-{k + 1}", collect)
+                executor.run(staged_jobs if k == 0 else jobs, work / f"round-{k + 1}",
+                             collect)
         finally:
             executor.close()
         if repeat > 1:
@@ -325,6 +352,75 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
         outcomes.append(_outcome(recipe, entry, recipe not in todo, settings, cache,
                                  unstable.get(recipe.slug, {})))
     return outcomes, len(todo), len(recipes) - len(todo)
+
+
+def _expected_seconds(recipe: Recipe, cache: Cache) -> float:
+    """How long the recipe should take, so the executor can start the longest first.
+
+    The last stored run's time when there is one. A recipe never run gets a guess from its
+    data volume (1 s plus 1 s per MB; a heuristic that only orders the queue): on a cold
+    build the one big recipe then starts first instead of last, when it would run alone at
+    the end while the other cores idle.
+    """
+    known = cache.last_run_seconds(recipe.slug)
+    if known:
+        return known
+    size = 0
+    for path in recipe.data:
+        try:
+            size += path.stat().st_size
+        except OSError:
+            continue
+    return 1.0 + size / 1e6
+
+
+def imported_modules(recipes: list[Recipe]) -> list[str]:
+    """Absolute imports in the Python scripts of ``recipes`` that workers may preload.
+
+    Read with ``ast`` (nothing is executed); ``from a.b import c`` yields ``a.b`` and
+    ``a.b.c`` (c may be a submodule). The worker keeps only ``worker.PRELOADABLE`` packages.
+    """
+    import ast
+
+    from figfolio.worker import PRELOADABLE
+
+    found: set[str] = set()
+    for recipe in recipes:
+        if recipe.kind != "python":
+            continue
+        try:
+            tree = ast.parse(recipe.script.read_bytes(), filename=str(recipe.script))
+        except (OSError, SyntaxError, ValueError):
+            continue  # the run reports it
+        for node in ast.walk(tree):
+            if isinstance(node, ast.Import):
+                found.update(alias.name for alias in node.names)
+            elif isinstance(node, ast.ImportFrom) and node.level == 0 and node.module:
+                found.add(node.module)
+                found.update(f"{node.module}.{alias.name}" for alias in node.names
+                             if alias.name != "*")
+    return sorted(m for m in found if m.partition(".")[0] in PRELOADABLE)[:200]
+
+
+def _store(result: RunResult, recipe: Recipe, settings: Settings, cache: Cache, key: str
+           ) -> Entry:
+    """Put one finished run into the cache, staged by its worker or, failing that, here."""
+    t0 = time.perf_counter()
+    if result.staged:
+        staging = Path(result.staged["dir"])
+        record = result.staged["record"]
+        run = record.get("run") or {}
+        result.status, result.reason = run.get("status", result.status), \
+            run.get("reason", result.reason)
+    else:
+        staging = Path(tempfile.mkdtemp(prefix="stage-", dir=_tmp_dir(cache)))
+        record = _stage(result, recipe, settings, staging)
+        _timed("staged_in_builder", 1.0)
+    _add_timings(record)
+    entry = cache.store(result.slug, key, staging, record)
+    shutil.rmtree(staging, ignore_errors=True)
+    _timed("store", time.perf_counter() - t0)
+    return entry
 
 
 def _tmp_dir(cache: Cache) -> Path:
@@ -372,12 +468,29 @@ def approve(settings: Settings, options: Options) -> tuple[Report, list[str]]:
 
 
 def publish(settings: Settings, outcomes: list[Outcome], options: Options) -> Path:
-    """Render the site from these outcomes into ``--out`` or build/site."""
-    from figfolio import site
+    """Render the site from these outcomes into ``--out`` or build/site, if it changed.
 
+    Only the recipe pages whose content changed are rendered again (plus the index, report and
+    pages whose neighbours changed, see site.py); nothing at all when the site on disk is
+    already the one these outcomes make (site_state.py). ``--force`` renders everything.
+    """
+    from figfolio import site_state
+
+    t0 = time.perf_counter()
     view = site_view(settings, outcomes, options.command)
     out = options.out or settings.site_path
-    site.publish(view, settings, out)
+    t1 = time.perf_counter()
+    state = site_state.view_state(view, settings.root)
+    changed = None if options.force else \
+        site_state.plan(state, site_state.read_state(out), out)
+    _timed("site_view", t1 - t0)
+    _timed("site_state", time.perf_counter() - t1)
+    if changed is False:  # the site on disk was published from exactly this state
+        _timed("site_unchanged", 1.0)
+        return out
+    from figfolio import site
+
+    site.publish(view, settings, out, changed_slugs=changed, state=state)
     return out
 
 
@@ -428,16 +541,34 @@ def _ordered(outcomes: list[Outcome], order: str) -> list[Outcome]:
 
 
 def recipe_files(recipe: Recipe) -> list[str]:
-    """Files of the recipe that go into its zip; restricted data stays out."""
-    out = []
+    """Files of the recipe that go into its zip; restricted data stays out.
+
+    Regular files only (no symlinks, no ``__pycache__``), in path order. Walked with
+    ``os.walk`` and plain strings: this runs for every recipe on every build, including
+    builds where nothing changed, and Path objects made it the slowest step of those.
+    """
+    import stat
+
     data_files = {recipe.rel(p) for p in recipe.data}
-    for path in sorted(recipe.folder.rglob("*")):
-        rel = path.relative_to(recipe.folder)
-        if not path.is_file() or path.is_symlink() or "__pycache__" in rel.parts:
+    root = str(recipe.folder)
+    found: list[tuple[str, ...]] = []
+    for dirpath, dirnames, filenames in os.walk(root):
+        dirnames[:] = [d for d in dirnames if d != "__pycache__"]
+        base = os.path.relpath(dirpath, root)
+        prefix = () if base == "." else tuple(base.split(os.sep))
+        for name in filenames:
+            try:
+                mode = os.lstat(os.path.join(dirpath, name)).st_mode
+            except OSError:
+                continue
+            if stat.S_ISREG(mode):
+                found.append((*prefix, name))
+    out = []
+    for parts in sorted(found):
+        rel = "/".join(parts)
+        if not recipe.publishes_data and (rel in data_files or parts[0] == "data"):
             continue
-        if not recipe.publishes_data and (rel.as_posix() in data_files or rel.parts[0] == "data"):
-            continue
-        out.append(rel.as_posix())
+        out.append(rel)
     return out
 
 
@@ -489,4 +620,7 @@ def _entry(o: Outcome, index: int, revision: str | None) -> dict[str, Any]:
                 "traceback": o.result.traceback, "from_cache": o.from_cache,
                 "warnings": list(o.result.warnings)},
         "order_index": index,
+        # Content digest of the cache record the run, audit and data parts come from (from
+        # the entry's checksum manifest): lets site_state digest those parts cheaply.
+        "record_sha256": (entry.files.get(RECORD) or {}).get("sha256"),
     }

@@ -134,9 +134,10 @@ def run_forked(result: dict[str, Any], spec: PostSpec, work: Path, on_start: Any
     """
     staging = work / STAGE_DIR
     record_path = work / RECORD_FILE
+    parent = os.getpid()
     pid = os.fork()
     if pid == 0:
-        _child(result, spec, staging, record_path, close)
+        _child(result, spec, staging, record_path, close, parent)
     on_start(pid)
     if not _wait(pid, POST_SECONDS):
         return None
@@ -179,11 +180,19 @@ def _wait(pid: int, seconds: float) -> bool:
 
 
 def _child(result: dict[str, Any], spec: PostSpec, staging: Path, record_path: Path,
-           close: list[int]) -> None:
-    """In the forked child: own session, stage, write the record, _exit without cleanup."""
+           close: list[int], parent: int) -> None:
+    """In the forked child: own session, stage, write the record, _exit without cleanup.
+
+    It dies with its worker (PR_SET_PDEATHSIG): a killed build must not leave a post step
+    writing into the cache's staging area after the next build cleaned it.
+    """
     code = 1
     try:
         os.setsid()
+        from figfolio.containment import die_with_parent
+        die_with_parent()
+        if os.getppid() != parent:  # the worker died before the line above took effect
+            os._exit(1)
         for sig in (signal.SIGINT, signal.SIGTERM, signal.SIGPIPE):
             signal.signal(sig, signal.SIG_DFL)
         for fd in close:

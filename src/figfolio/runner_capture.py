@@ -224,16 +224,69 @@ class ImportRecorder:
             self._original = None
 
 
+OWNERS_CACHE_ENV = "FIGFOLIO_OWNERS_CACHE"
+
+
 @functools.lru_cache(maxsize=1)
 def distribution_owners() -> dict[str, list[str]]:
-    """Top-level module -> distributions. Cached: scanning every dist-info takes ~0.2 s, so the
-    warm worker computes it once and every forked child inherits it."""
+    """Top-level module -> distributions. Cached: scanning every dist-info takes 0.2-0.3 s, so
+    the warm worker computes it once and every forked child inherits it; and when the builder
+    names a file in $FIGFOLIO_OWNERS_CACHE, the scan is kept there for the next worker, valid
+    while no folder on sys.path changed (installing or removing a package changes the
+    modification time of its site-packages folder)."""
     from importlib import metadata
 
+    cache = os.environ.get(OWNERS_CACHE_ENV)
+    key = _path_state()
+    if cache:
+        try:
+            saved = json.loads(Path(cache).read_text(encoding="utf-8"))
+            if saved.get("key") == key and isinstance(saved.get("owners"), dict):
+                return {str(k): list(v) for k, v in saved["owners"].items()}
+        except (OSError, ValueError, AttributeError, TypeError):
+            pass
     try:
-        return dict(metadata.packages_distributions())
+        owners = dict(metadata.packages_distributions())
     except Exception:  # a broken dist-info must not break the run
         return {}
+    if cache:
+        _save_owners(Path(cache), key, owners)
+    return owners
+
+
+def _path_state() -> list[list[Any]]:
+    """What the owner table depends on: per sys.path folder, the modification time of a
+    ``*-packages`` folder (it changes when a package is installed or removed), or for any
+    other folder (the working directory, a source tree) the names of its ``.dist-info`` and
+    ``.egg-info`` entries, since its modification time changes with every file written."""
+    state: list[list[Any]] = [[sys.executable, sys.prefix]]
+    for entry in sys.path:
+        folder = entry or "."
+        try:
+            if folder.endswith(("site-packages", "dist-packages")):
+                state.append([entry, os.stat(folder).st_mtime_ns])
+            elif os.path.isdir(folder):
+                state.append([entry, sorted(n for n in os.listdir(folder)
+                                            if n.endswith((".dist-info", ".egg-info")))])
+            else:
+                state.append([entry, None])
+        except OSError:
+            state.append([entry, None])
+    return state
+
+
+def _save_owners(path: Path, key: list[list[Any]], owners: dict[str, list[str]]) -> None:
+    """Write the owner table atomically; a read-only or missing folder just means no cache."""
+    tmp = path.with_name(f".tmp-{path.name}.{os.getpid()}")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp.write_text(json.dumps({"key": key, "owners": owners}), encoding="utf-8")
+        os.replace(tmp, path)
+    except OSError:
+        try:
+            tmp.unlink()
+        except OSError:
+            pass
 
 
 def package_versions(names: set[str]) -> dict[str, str]:

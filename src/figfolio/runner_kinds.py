@@ -30,11 +30,18 @@ VERSION_COMMAND = {"Rscript": ["R", "--version"]}
 # --- notebooks ----------------------------------------------------------------------------
 
 def _setup_source(job: Job, work: Path) -> str:
+    """The cell figfolio runs first in the kernel: Agg, the canvas cap, and the memory limit.
+
+    The memory limit is set here, inside the kernel, because the kernel is a new process whose
+    own threads and libraries need room that the forked recipe process's limit does not allow.
+    """
     pid_file = str(work / KERNEL_PID_FILE)
     return ("import os as _ff_os, matplotlib as _ff_mpl\n"
             "_ff_mpl.use('Agg')\n"
             "import figfolio.runner_capture as _ff\n"
             f"open({pid_file!r}, 'w').write(str(_ff_os.getpid()))\n"
+            "import figfolio.containment as _ff_limits\n"
+            f"_ff_limits.set_memory_limit({job.memory_mb})\n"
             f"_ff_state = _ff.kernel_setup({job.max_pixels}, {str(work / 'recipe')!r})\n")
 
 

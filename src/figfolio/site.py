@@ -50,6 +50,7 @@ def publish(view: dict[str, Any], settings: Settings, out: Path, *,
     entries = list(view.get("recipes") or [])
     _check_slugs(entries)
     env = make_env(settings.root)
+    _cache_templates(env, settings)
     tmp = temp_site_folder(out)
     try:
         _write_assets(settings.root, tmp / "assets")
@@ -66,6 +67,20 @@ def publish(view: dict[str, Any], settings: Settings, out: Path, *,
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+
+
+def _cache_templates(env: Environment, settings: Settings) -> None:
+    """Keep compiled templates in build/cache/templates: compiling the theme costs about
+    0.2 s per build, more than rendering the pages of a small change. Jinja checks each
+    template's source checksum, so an edited template is compiled again."""
+    from jinja2 import FileSystemBytecodeCache
+
+    folder = Path(settings.cache_path) / "templates"
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError:
+        return  # a read-only cache folder only costs the compile time
+    env.bytecode_cache = FileSystemBytecodeCache(str(folder))
 
 
 def _check_slugs(entries: list[dict[str, Any]]) -> None:

@@ -60,12 +60,22 @@ def _digest(value: Any) -> str:
     return hashlib.sha256(blob.encode("utf-8")).hexdigest()
 
 
+# Entry parts copied verbatim from the cache record: when the entry carries the record's own
+# sha256 (``record_sha256``), that digest stands for them, which halves the bytes to hash.
+FROM_RECORD = ("audit", "run")
+
+
 def entry_digest(entry: dict[str, Any]) -> str:
     """What one recipe page shows of its own recipe (see the module docstring for omissions)."""
     shown = {k: v for k, v in entry.items() if k != "order_index"}
     run = dict(shown.get("run") or {})
     run.pop("from_cache", None)
     shown["run"] = run
+    if shown.get("record_sha256"):
+        for key in FROM_RECORD:
+            shown.pop(key, None)
+        shown["data_files"] = [{k: v for k, v in item.items() if k != "description"}
+                               for item in shown.get("data_files") or []]
     return _digest(shown)
 
 
@@ -95,15 +105,21 @@ def plan(state: dict[str, Any], previous: dict[str, Any] | None, site: Path
          ) -> set[str] | None | bool:
     """False: nothing to publish. None: publish everything. A set: publish these recipes.
 
-    Nothing is skipped unless the site's index page is still there (someone may have deleted
-    files by hand); a change in the common digest re-renders the top pages while recipe pages
-    are still reused by ``site.publish`` when their own signature did not change.
+    Nothing is skipped unless the index and every recipe page are still there (someone may
+    have deleted files by hand); a change in the common digest re-renders the top pages while
+    recipe pages are still reused by ``site.publish`` when their own signature did not change.
     """
     if previous is None:
         return None
     old_pages = previous.get("pages") or {}
     changed = {slug for slug, digest in state["pages"].items() if old_pages.get(slug) != digest}
-    if not changed and previous.get("common") == state["common"] \
-            and (Path(site) / "index.html").is_file():
+    if not changed and previous.get("common") == state["common"] and _complete(site, state):
         return False
     return changed
+
+
+def _complete(site: Path, state: dict[str, Any]) -> bool:
+    """The index and each recipe's page exist (a stat per page: milliseconds for 1,000)."""
+    root = str(site)
+    return os.path.isfile(os.path.join(root, "index.html")) and all(
+        os.path.isfile(os.path.join(root, "r", slug, "index.html")) for slug in state["pages"])

@@ -16,6 +16,7 @@ fork of this warm process after the recipe's child ended, so it uses the worker'
 of the builder's main thread, and never runs in a process that recipe code touched.
 EOF on stdin ends the worker. ``python -m figfolio.worker --one WORK`` runs the single job
 pickled in ``WORK/job.pickle`` in this very process (spawn mode, for platforms without fork).
+``--preload a.b,c`` also imports those modules before answering "ready" (see ``PRELOADABLE``).
 """
 from __future__ import annotations
 
@@ -30,6 +31,12 @@ from typing import Any
 
 HEADER = 8
 JOB_FILE = "job.pickle"
+# Packages whose modules the builder may ask a worker to import ahead (because the recipes it
+# is about to run import them): heavy to import, and importing them changes no state a recipe
+# could see (no matplotlib styles or colour maps registered, no options set). Packages that
+# register colour maps or styles on import (seaborn, for one) are left to the recipe, so a
+# recipe that forgot its import fails here as it would when run by hand.
+PRELOADABLE = ("scipy", "statsmodels", "sklearn", "patsy", "lifelines", "skimage")
 
 
 class ProtocolEOF(Exception):
@@ -65,9 +72,26 @@ def recv_frame(fd: int, deadline: float | None = None) -> Any:
     return pickle.loads(_read_exact(fd, size, deadline))
 
 
-def warm_up() -> float:
+def preload(modules: list[str]) -> list[str]:
+    """Import each allowed module (see PRELOADABLE); return those that imported."""
+    import importlib
+
+    done = []
+    for name in modules:
+        if name.partition(".")[0] not in PRELOADABLE:
+            continue
+        try:
+            importlib.import_module(name)
+            done.append(name)
+        except Exception:  # the recipe will meet (and report) the same error itself
+            continue
+    return done
+
+
+def warm_up(modules: list[str] | None = None) -> float:
     """Import what nearly every recipe imports, and build matplotlib's font list once."""
     start = time.perf_counter()
+    preload(modules or [])
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.font_manager
@@ -168,11 +192,11 @@ def _child(job: Any, work: Path, out_w: int, err_w: int, close: list[int]) -> No
         os._exit(code)
 
 
-def serve() -> int:
+def serve(modules: list[str] | None = None) -> int:
     """The fork-server loop: read a job, fork, answer, until stdin closes."""
     proto_out = os.dup(1)
     os.dup2(2, 1)  # stray prints from imports must not corrupt the protocol
-    warm = warm_up()
+    warm = warm_up(modules)
     send_frame(proto_out, ("ready", {"pid": os.getpid(), "warm_seconds": warm}))
     while True:
         try:
@@ -213,8 +237,11 @@ def run_one(work: Path) -> int:
 def main(argv: list[str]) -> int:
     if argv[:1] == ["--one"] and len(argv) == 2:
         return run_one(Path(argv[1]))
+    if argv[:1] == ["--preload"] and len(argv) == 2:
+        return serve([m for m in argv[1].split(",") if m])
     if argv:
-        print("usage: python -m figfolio.worker [--one WORK_DIR]", file=sys.stderr)
+        print("usage: python -m figfolio.worker [--one WORK_DIR | --preload MODULE,...]",
+              file=sys.stderr)
         return 2
     return serve()
 

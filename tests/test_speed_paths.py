@@ -1,0 +1,367 @@
+"""The fast paths (issue 6) do the same work as the slow ones: functional checks, no timings.
+
+* the post step (digests, thumbnails, audit, data summaries) run by a warm worker in a fresh
+  fork gives the same record as the builder staging the same outputs itself (the Dask and
+  spawn path), and a recipe that tampers with hashing in its own process cannot reach it;
+* thumbnails are lossless and the audit's previews reuse the decoded image correctly;
+* a build where nothing changed publishes nothing and imports no rendering stack; a change
+  re-renders only the pages that show it; the data screen is not repeated for unchanged data;
+* workers preload what the scripts import, and the distribution table cache is exact.
+"""
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import os
+import subprocess
+import sys
+import textwrap
+from pathlib import Path
+
+import pytest
+from PIL import Image
+
+from figfolio import build, fingerprint, poststep, site_state
+from figfolio.audit_pixels import load_rgb
+from figfolio.build import Options, run_pass
+from figfolio.executor import LocalExecutor
+from figfolio.recipe import discover, load_recipe
+from figfolio.runner import Job, RunResult
+from figfolio.settings import load_settings
+
+LINE = '''
+import matplotlib.pyplot as plt
+import pandas as pd
+
+d = pd.read_csv("data/values.csv")
+fig, ax = plt.subplots(figsize=(4, 3))
+ax.plot(d["week"], d["rate"], color="#D55E00")
+ax.set_xlabel("Week")
+ax.set_ylabel("Rate")
+plt.show()
+'''
+
+# Replaces hashlib.sha256 and Pillow's tobytes in the recipe's own process: if the post step
+# ran in that process, the digests would come out wrong.
+TAMPER = '''
+import hashlib
+import matplotlib.pyplot as plt
+from PIL import Image
+
+class Fake:
+    def __init__(self, *a, **k): pass
+    def update(self, *a): pass
+    def hexdigest(self): return "0" * 64
+
+hashlib.sha256 = Fake
+Image.Image.tobytes = lambda self, *a, **k: b""
+fig, ax = plt.subplots(figsize=(3, 2))
+ax.bar(["a", "b"], [2, 3], color="#0072B2")
+ax.set_xlabel("Group")
+ax.set_ylabel("Count")
+plt.show()
+'''
+
+PRELOADED = '''
+import sys
+print("preloaded:", "scipy.cluster.hierarchy" in sys.modules)
+from scipy.cluster.hierarchy import linkage  # noqa: F401
+import matplotlib.pyplot as plt
+fig, ax = plt.subplots(figsize=(3, 2))
+ax.plot([0, 1], [0, 1])
+ax.set_xlabel("x")
+ax.set_ylabel("y")
+plt.show()
+'''
+
+
+def add(root: Path, slug: str, script: str, rows: int = 6) -> Path:
+    folder = root / "recipes" / slug
+    (folder / "data").mkdir(parents=True)
+    (folder / "recipe.toml").write_text(textwrap.dedent(f'''\
+        title = "{slug.replace('-', ' ')}"
+        summary = "A small test figure."
+        alt = "A line chart of an invented weekly rate over {rows} weeks."
+        tags = ["test"]
+        width_mm = 120
+        data_origin = "synthetic"
+        '''))
+    (folder / "figure.py").write_text(script)
+    lines = ["week,rate"] + [f"{w},{(w * 7) % 11 + 0.5}" for w in range(rows)]
+    (folder / "data" / "values.csv").write_text("\n".join(lines) + "\n")
+    return folder
+
+
+@pytest.fixture
+def catalogue(tmp_path: Path) -> Path:
+    root = tmp_path / "cat"
+    (root / "recipes").mkdir(parents=True)
+    (root / "figfolio.toml").write_text('title = "Speed paths"\njobs = 2\nformats = ["png"]\n')
+    for k in range(3):
+        add(root, f"line-{k}", LINE, rows=6 + k)
+    return root
+
+
+def reference_exact(path: Path) -> str:
+    """PRODUCT.md §5 exact digest recomputed with Pillow and hashlib only."""
+    with Image.open(path) as img:
+        rgba = img.convert("RGBA")
+        head = f"RGBA|{rgba.width}|{rgba.height}|".encode("ascii")
+        return "sha256:" + hashlib.sha256(head + rgba.tobytes()).hexdigest()
+
+
+def reference_perceptual(path: Path) -> str:
+    """Reference library from PyPI: imagehash.phash with hash_size=16 (what figfolio mirrors)."""
+    imagehash = pytest.importorskip("imagehash")
+    with Image.open(path) as img:
+        return str(imagehash.phash(img, hash_size=16))
+
+
+def run_with_post(folder: Path, work: Path) -> RunResult:
+    settings = load_settings(folder.parent.parent)
+    recipe = load_recipe(folder, settings)
+    job = dataclasses.replace(Job.from_recipe(recipe, settings),
+                              post=poststep.PostSpec(recipe, settings))
+    got: list[RunResult] = []
+    with LocalExecutor(jobs=1) as executor:
+        executor.run([job], work, got.append)
+    return got[0]
+
+
+def test_worker_post_step_equals_builder_staging_and_references(catalogue: Path, tmp_path: Path
+                                                                 ) -> None:
+    folder = catalogue / "recipes" / "line-0"
+    result = run_with_post(folder, tmp_path / "work")
+    assert result.status == "ok" and result.staged is not None
+    record = result.staged["record"]
+    # The builder's own path (spawn mode, Dask) on the very same raw outputs.
+    settings = load_settings(catalogue)
+    raw = RunResult.from_dict(result.to_dict())
+    assert "staged" not in result.to_dict()        # transport only, never stored
+    mine = build._stage(raw, load_recipe(folder, settings), settings, tmp_path / "again")
+    assert mine["images"] == record["images"]
+    assert mine["audit"]["findings"] == record["audit"]["findings"]
+    assert mine["data"] == record["data"]
+    png = Path(result.staged["dir"]) / "figure-1.png"
+    assert record["images"]["figure-1.png"]["exact"] == reference_exact(png)
+    assert record["images"]["figure-1.png"]["perceptual"] == reference_perceptual(png)
+    for kind in ("protan", "deutan", "tritan", "grayscale"):
+        assert (Path(result.staged["dir"]) / record["audit"]["images"]["1"][kind]).is_file()
+
+
+def test_recipe_cannot_tamper_with_its_own_fingerprints(catalogue: Path, tmp_path: Path
+                                                        ) -> None:
+    folder = add(catalogue, "tamper", TAMPER)
+    result = run_with_post(folder, tmp_path / "work")
+    assert result.status == "ok", result.reason
+    png = Path(result.staged["dir"]) / "figure-1.png"
+    digest = result.staged["record"]["images"]["figure-1.png"]["exact"]
+    assert digest == reference_exact(png) and digest != "sha256:" + "0" * 64
+
+
+def test_thumbnails_are_lossless_lanczos_of_the_figure(tmp_path: Path) -> None:
+    # Reference: Pillow's own Lanczos resize; WebP lossless (RFC 9649 §3) must decode to the
+    # very same pixels.
+    img = Image.linear_gradient("L").resize((1000, 700)).convert("RGB")
+    img.putpixel((10, 10), (200, 0, 60))
+    src = tmp_path / "figure-1.png"
+    img.save(src)
+    facts = fingerprint.analyse_png(src, tmp_path / "thumbs")
+    big = img.resize((640, 448), Image.Resampling.LANCZOS, reducing_gap=3.0)
+    small = big.resize((320, 224), Image.Resampling.LANCZOS, reducing_gap=3.0)
+    for size, expected in ((640, big), (320, small)):
+        with Image.open(facts.thumbs[size]) as thumb:
+            assert thumb.size == expected.size
+            assert thumb.convert("RGB").tobytes() == expected.tobytes()
+
+
+def test_transparent_figures_keep_their_alpha_in_thumbnails(tmp_path: Path) -> None:
+    img = Image.new("RGBA", (800, 400), (0, 0, 0, 0))
+    img.paste((0, 114, 178, 255), (100, 100, 300, 200))
+    src = tmp_path / "figure-1.png"
+    img.save(src)
+    facts = fingerprint.analyse_png(src, tmp_path / "thumbs", sizes=(320,))
+    with Image.open(facts.thumbs[320]) as thumb:
+        assert thumb.mode == "RGBA" and thumb.getextrema()[3][0] == 0
+
+
+def test_audit_previews_reuse_the_decoded_image_only_while_the_file_is_unchanged(
+        tmp_path: Path) -> None:
+    src = tmp_path / "figure-1.png"
+    Image.new("RGB", (500, 300), (230, 159, 0)).save(src)
+    plain = load_rgb(src, 360)
+    fingerprint.analyse_png(src, None, keep_decoded=True)
+    try:
+        assert fingerprint.recall(src) is not None
+        assert (load_rgb(src, 360) == plain).all()          # same pixels either way
+        Image.new("RGB", (500, 300), (86, 180, 233)).save(src)
+        os.utime(src, ns=(1, 1))                             # a different file on disk
+        assert fingerprint.recall(src) is None
+        assert tuple(load_rgb(src)[0, 0]) == (86, 180, 233)
+    finally:
+        fingerprint.forget_decoded()
+
+
+def _inode(path: Path) -> int:
+    return path.stat().st_ino
+
+
+def test_noop_publishes_nothing_and_a_change_renders_only_its_page(catalogue: Path) -> None:
+    settings = load_settings(catalogue)
+    first = run_pass(settings, Options(quiet=True))
+    assert first.ran == 3
+    site = settings.site_path
+    before = {p.name: _inode(p / "index.html") for p in (site / "r").iterdir()}
+    index = _inode(site / "index.html")
+    second = run_pass(settings, Options(quiet=True))
+    assert second.ran == 0 and "site_unchanged" in second.timings
+    assert _inode(site / "index.html") == index            # the site was not swapped
+    data = catalogue / "recipes" / "line-1" / "data" / "values.csv"
+    data.write_text(data.read_text() + "99,1.5\n")
+    third = run_pass(settings, Options(quiet=True))
+    assert third.ran == 1
+    after = {p.name: _inode(p / "index.html") for p in (site / "r").iterdir()}
+    assert after["line-1"] != before["line-1"]
+    # The neighbours' pages show line-1's title and summary only, which did not change: they
+    # are the previous site's files (hard links, same inode), not rendered again.
+    assert after["line-0"] == before["line-0"] and after["line-2"] == before["line-2"]
+    assert _inode(site / "index.html") != index            # the index shows every recipe
+
+
+def test_readme_edit_republishes_without_running(catalogue: Path) -> None:
+    settings = load_settings(catalogue)
+    run_pass(settings, Options(quiet=True))
+    old = site_state.read_state(settings.site_path)
+    (catalogue / "recipes" / "line-2" / "README.md").write_text("# Notes\n\nA new paragraph.\n")
+    again = run_pass(settings, Options(quiet=True))
+    assert again.ran == 0 and "site_unchanged" not in again.timings
+    new = site_state.read_state(settings.site_path)
+    assert old is not None and new is not None
+    changed = {s for s in new["pages"] if new["pages"][s] != old["pages"][s]}
+    assert changed == {"line-2"}
+    page = (settings.site_path / "r" / "line-2" / "index.html").read_text(encoding="utf-8")
+    assert "A new paragraph." in page
+
+
+def test_noop_build_imports_no_rendering_stack(catalogue: Path) -> None:
+    settings = load_settings(catalogue)
+    run_pass(settings, Options(quiet=True))
+    code = textwrap.dedent(f'''
+        import json, sys
+        from pathlib import Path
+        from figfolio.build import Options, run_pass
+        from figfolio.settings import load_settings
+        report = run_pass(load_settings(Path({str(catalogue)!r})), Options(quiet=True))
+        heavy = sorted(m for m in sys.modules
+                       if m.split(".")[0] in ("numpy", "pandas", "matplotlib", "PIL", "scipy"))
+        print(json.dumps({{"ran": report.ran, "heavy": heavy}}))
+        ''')
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         env=dict(os.environ, CI="1"), timeout=120)
+    assert run.returncode == 0, run.stderr
+    got = json.loads(run.stdout.strip().splitlines()[-1])
+    assert got == {"ran": 0, "heavy": []}
+
+
+def test_screen_is_not_repeated_for_unchanged_data(catalogue: Path, monkeypatch: pytest.MonkeyPatch
+                                                   ) -> None:
+    from figfolio import screen
+
+    settings = load_settings(catalogue)
+    recipes, _ = discover(settings)
+    calls: list[str] = []
+    real = screen.screen_recipe
+
+    def counting(recipe, settings):  # type: ignore[no-untyped-def]
+        calls.append(recipe.slug)
+        return real(recipe, settings)
+
+    monkeypatch.setattr(screen, "screen_recipe", counting)
+    from figfolio.cache import Cache
+    cache = Cache(settings.cache_path)
+    keys = {r.slug: cache.input_key(r, settings) for r in recipes}
+    assert build.screen_all(recipes, settings, cache, keys) == ""
+    assert sorted(calls) == ["line-0", "line-1", "line-2"]
+    calls.clear()
+    assert build.screen_all(recipes, settings, cache, keys) == ""
+    assert calls == []
+    keys["line-1"] = "0" * 64                       # its files changed
+    build.screen_all(recipes, settings, cache, keys)
+    assert calls == ["line-1"]
+    calls.clear()
+    stricter = dataclasses.replace(settings, screen=dataclasses.replace(settings.screen,
+                                                                        small_cell=3))
+    build.screen_all(recipes, stricter, cache, keys)
+    assert sorted(calls) == ["line-0", "line-1", "line-2"]
+
+
+def test_imported_modules_reads_imports_without_running(catalogue: Path) -> None:
+    folder = add(catalogue, "imports", textwrap.dedent('''
+        import os, scipy.stats
+        from scipy.cluster.hierarchy import linkage, leaves_list
+        from statsmodels import api as sm
+        from . import helper
+        import seaborn
+        raise SystemExit("never run")
+        '''))
+    settings = load_settings(catalogue)
+    got = build.imported_modules([load_recipe(folder, settings)])
+    # Expected from the Python language reference, "The import statement" (common practice
+    # for what each form binds); seaborn and os are not preloadable, relative imports skipped.
+    assert got == ["scipy.cluster.hierarchy", "scipy.cluster.hierarchy.leaves_list",
+                   "scipy.cluster.hierarchy.linkage", "scipy.stats", "statsmodels",
+                   "statsmodels.api"]
+
+
+def test_worker_preloads_what_the_scripts_import(catalogue: Path, tmp_path: Path) -> None:
+    folder = add(catalogue, "preloaded", PRELOADED)
+    settings = load_settings(catalogue)
+    recipe = load_recipe(folder, settings)
+    job = Job.from_recipe(recipe, settings)
+    for preload, expected in ((build.imported_modules([recipe]), "True"), ((), "False")):
+        got: list[RunResult] = []
+        with LocalExecutor(jobs=1, preload=preload) as executor:
+            executor.run([job], tmp_path / f"work-{expected}", got.append)
+        assert got[0].status == "ok", got[0].reason
+        assert f"preloaded: {expected}" in got[0].stdout_tail
+
+
+def test_distribution_table_cache_matches_importlib_metadata(tmp_path: Path) -> None:
+    # Reference: importlib.metadata.packages_distributions() from the standard library.
+    cache = tmp_path / "owners.json"
+    code = textwrap.dedent('''
+        import json
+        from importlib import metadata
+        from figfolio.runner_capture import distribution_owners
+        mine = distribution_owners()
+        ref = {k: list(v) for k, v in metadata.packages_distributions().items()}
+        print(json.dumps(mine == ref))
+        ''')
+    env = dict(os.environ, FIGFOLIO_OWNERS_CACHE=str(cache))
+    for _ in range(2):  # computed and saved, then read back from the file
+        run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                             env=env, timeout=120)
+        assert run.returncode == 0, run.stderr
+        assert run.stdout.strip() == "true"
+    assert json.loads(cache.read_text())["owners"]
+
+
+def test_never_run_recipes_with_more_data_are_expected_to_take_longer(catalogue: Path) -> None:
+    settings = load_settings(catalogue)
+    add(catalogue, "big-data", LINE, rows=50_000)
+    from figfolio.cache import Cache
+    cache = Cache(settings.cache_path)
+    recipes = {r.slug: r for r in discover(settings)[0]}
+    assert build._expected_seconds(recipes["big-data"], cache) > \
+        build._expected_seconds(recipes["line-0"], cache)
+
+
+def test_a_page_deleted_by_hand_is_published_again(catalogue: Path) -> None:
+    settings = load_settings(catalogue)
+    run_pass(settings, Options(quiet=True))
+    page = settings.site_path / "r" / "line-0" / "index.html"
+    page.unlink()
+    again = run_pass(settings, Options(quiet=True))
+    assert again.ran == 0 and "site_unchanged" not in again.timings
+    assert page.is_file()
