@@ -465,11 +465,6 @@ def test_payloads_do_nothing_in_chromium(built: dict[str, Any], mode: str, tmp_p
     assert len(watch.errors) == len(watch.failed)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "runner (notebook kind): the Jupyter kernel is a fresh process that inherits the recipe's "
-    "RLIMIT_AS, so under memory_mb = 150 a notebook that only imports matplotlib dies while "
-    "the same code as figure.py runs; the reason names no memory limit (ImportError 'failed "
-    "to map segment' or 'DeadKernelError: Kernel died')"))
 def test_notebook_under_a_memory_limit_runs_or_names_the_limit(tmp_path: Path) -> None:
     root = tmp_path / "cat"
     (root / "recipes").mkdir(parents=True)
@@ -484,3 +479,15 @@ def test_notebook_under_a_memory_limit_runs_or_names_the_limit(tmp_path: Path) -
         table_line(run.stdout, "nb-plot", "unapproved")
     except AssertionError:
         assert "memory" in table_line(run.stdout, "nb-plot", "broken"), run.stdout
+
+
+def test_notebook_memory_limit_is_enforced_inside_the_kernel(tmp_path: Path) -> None:
+    # The kernel sets the address-space limit on itself (runner_kinds' first cell): a cell
+    # that allocates 2 GB under memory_mb = 300 fails with MemoryError instead of running.
+    root = tmp_path / "cat"
+    (root / "recipes").mkdir(parents=True)
+    write(root / "figfolio.toml", 'title = "Memory"\nmemory_mb = 300\nformats = ["png"]\n')
+    notebook(root / "recipes" / "nb-hog", ["import matplotlib.pyplot as plt\nplt.plot([1, 2])\n"
+                                           "block = bytearray(2_000_000_000)"])
+    run = figfolio(root, "build")
+    assert "MemoryError" in table_line(run.stdout, "nb-hog", "broken"), run.stdout

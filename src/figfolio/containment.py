@@ -46,7 +46,12 @@ def contain(job: Job) -> dict[str, Any]:
     """Apply the memory limit and network isolation to THIS process; return provenance notes."""
     notes: dict[str, Any] = {"memory_limit_mb": job.memory_mb}
     die_with_parent()
-    notes["memory_limit"] = set_memory_limit(job.memory_mb)
+    if job.kind == "notebook":
+        # The kernel is a new process with its own threads and libraries; it sets the limit
+        # on itself in figfolio's first cell (runner_kinds), so this process must not cap it.
+        notes["memory_limit"] = "set inside the notebook kernel"
+    else:
+        notes["memory_limit"] = set_memory_limit(job.memory_mb)
     notes["network"] = "allowed" if job.network else isolate_network()
     return notes
 
