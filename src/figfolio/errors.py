@@ -66,6 +66,10 @@ class AuditError(FigfolioError):
     exit_code = 1
 
 
+class SiteError(FigfolioError):
+    """The site cannot be written: a bad file name in the view, a template error, a disk error."""
+
+
 class BuildLockedError(FigfolioError):
     """Another figfolio process holds the catalogue's build lock."""
 

@@ -14,13 +14,9 @@ import zipfile
 from pathlib import Path, PurePosixPath
 from urllib.parse import quote
 
-from figfolio.errors import FigfolioError
+from figfolio.errors import SiteError
 
 ZIP_EPOCH = (1980, 1, 1, 0, 0, 0)  # the earliest time a zip entry can hold: fixed, so bytes repeat
-
-
-class SiteError(FigfolioError):
-    """The site cannot be written: a bad file name in the view, a template error, a disk error."""
 
 
 def safe_parts(name: str, *, where: Path | str | None = None, key: str = "files") -> list[str]:
