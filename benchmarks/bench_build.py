@@ -7,7 +7,10 @@ Measured on one synthetic catalogue of N recipes (``make_catalogue.py``), altern
 contenders in one run so machine noise hits them alike:
   (a) naive: each recipe as its own ``python`` process, serially, then digests and thumbnails;
   (b) floor: every script in one warm interpreter, timed per script, divided by the core count;
-  (c) ``figfolio build`` cold; (d) with nothing changed; (e) after one data file changed;
+  (c) ``figfolio build`` cold; (d) with nothing changed (answered from build/cache/noop.json;
+      at scale also the full no-op path without it); (e) after one data file changed, against
+      that recipe's own run in its worker and against running it by hand (``python figure.py``
+      with Agg, saving like (a), interpreter start included);
   (f) peak memory of the builder and of its biggest child; (g) the audit's and the site's share.
 Scale run: 1,000 tiny recipes for the no-op and site-rendering figures; search timing in
 headless Chromium over a 5,000-recipe index (``search_timing.py``).
@@ -89,6 +92,7 @@ me, kids = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource
 heavy = sorted(m for m in sys.modules if m.split(".")[0] in ("numpy", "pandas", "matplotlib",
                                                           "PIL", "scipy"))
 print(json.dumps({"wall": wall, "ran": report.ran, "cached": report.cached,
+                  "fast": report.fast, "fast_miss": report.fast_miss,
                   "timings": report.timings, "counts": report.counts(),
                   "self_kb": me.ru_maxrss, "children_kb": kids.ru_maxrss,
                   "cpu_s": me.ru_utime + me.ru_stime + kids.ru_utime + kids.ru_stime,
@@ -191,8 +195,23 @@ def lint_passes(root: Path) -> bool:
     return run.returncode == 0
 
 
-def change_one(root: Path) -> tuple[dict, float]:
-    """(e): append a row to one data file; return the build and that recipe's own run time."""
+def by_hand(folder: Path, formats: str, times: int = 3) -> float:
+    """Median wall time of running one recipe by hand: ``python figure.py`` with the Agg
+    backend, saving its figures the way the naive contender does (interpreter start included)."""
+    out = Path(tempfile.mkdtemp(prefix="by-hand-"))
+    seconds = []
+    for _ in range(times):
+        t0 = time.perf_counter()
+        subprocess.run([python(), "-c", NAIVE, formats, str(out)], cwd=folder, check=True,
+                       env=dict(os.environ, MPLBACKEND="Agg"), capture_output=True)
+        seconds.append(time.perf_counter() - t0)
+    shutil.rmtree(out, ignore_errors=True)
+    return statistics.median(seconds)
+
+
+def change_one(root: Path, formats: str = "png,svg,pdf") -> tuple[dict, float, float]:
+    """(e): append a row to one data file; return the build, that recipe's own run time in
+    its worker, and the time of running it by hand (measured right after, same machine)."""
     folder = sorted((root / "recipes").iterdir())[3]
     data = next(p for p in (folder / "data").iterdir() if p.suffix == ".csv")
     lines = data.read_text().splitlines()
@@ -202,7 +221,7 @@ def change_one(root: Path) -> tuple[dict, float]:
     own = 0.0
     for record in record_dir.rglob("record.json"):
         own = json.loads(record.read_text())["run"]["duration"]
-    return result, own
+    return result, own, by_hand(folder, formats)
 
 
 def main() -> None:
@@ -282,14 +301,18 @@ def main_catalogue(figures: dict, work: Path, n: int, rounds: int, skip_naive: b
                         "ratio_cold_over_naive_png": med["cold_png"] / med["naive_png"]})
     noop = builder(all_root)
     noop_cli = statistics.median(cli_seconds(all_root, "build") for _ in range(3))
-    changed, own = change_one(all_root)
+    changed, own, hand = change_one(all_root)
     t = cold_all["timings"]
     work_s = sum(t.get(k, 0.0) for k in ("digests", "audit", "data"))
     figures.update({
         "noop_s": noop["wall"], "noop_ran": noop["ran"], "noop_cli_s": noop_cli,
+        "noop_fast": noop["fast"],
         "noop_heavy_modules": noop["heavy_modules"],
         "one_changed_s": changed["wall"], "one_changed_ran": changed["ran"],
         "one_changed_own_run_s": own, "one_changed_over_own_s": changed["wall"] - own,
+        "one_changed_by_hand_s": hand,
+        "ratio_one_changed_over_own_run": changed["wall"] / own if own else None,
+        "ratio_one_changed_over_by_hand": changed["wall"] / hand,
         "one_changed_timings": changed["timings"],
         "builder_peak_mb": cold_all["self_kb"] / 1024,
         "child_peak_mb": cold_all["children_kb"] / 1024,
@@ -308,6 +331,11 @@ def scale_run(figures: dict, work: Path, count: int) -> None:
     noops = [builder(tiny) for _ in range(3)]
     noop_tiny = min(noops, key=lambda r: r["wall"])
     noop_tiny_cli = statistics.median(cli_seconds(tiny, "build") for _ in range(3))
+    fulls = []
+    for _ in range(2):  # the no-op without noop.json: every recipe loaded, looked up, judged
+        (tiny / "build" / "cache" / "noop.json").unlink(missing_ok=True)
+        fulls.append(builder(tiny))
+    full = min(fulls, key=lambda r: r["wall"])
     shutil.rmtree(tiny / "build" / "site", ignore_errors=True)
     rerender = builder(tiny)
     figures.update({
@@ -315,6 +343,9 @@ def scale_run(figures: dict, work: Path, count: int) -> None:
         "scale_noop_s": noop_tiny["wall"], "scale_noop_runs_s": [r["wall"] for r in noops],
         "scale_noop_cli_s": noop_tiny_cli, "scale_noop_timings": noop_tiny["timings"],
         "scale_noop_heavy_modules": noop_tiny["heavy_modules"],
+        "scale_noop_fast": [r["fast"] for r in noops],
+        "scale_noop_full_path_s": full["wall"], "scale_noop_full_path_timings": full["timings"],
+        "scale_noop_full_path_fast": full["fast"],
         "scale_site_render_s": rerender["timings"].get("site", 0.0),
         "scale_builder_peak_mb": first["self_kb"] / 1024,
         "scale_noop_builder_peak_mb": noop_tiny["self_kb"] / 1024,
@@ -341,6 +372,14 @@ def report(figures: dict) -> None:
             value = figures[key]
             print(f"  {label:34s} {value:9.3f}  (target <= {limit:g}: "
                   f"{'met' if value <= limit else 'NOT met'})")
+    if "one_changed_s" in figures:
+        own, hand = figures["one_changed_own_run_s"], figures["one_changed_by_hand_s"]
+        print(f"\none changed: build {figures['one_changed_s']:.2f} s; the recipe's own run in "
+              f"its worker {own:.2f} s (ratio {figures['one_changed_s'] / own:.1f}x)"
+              if own else "\none changed: no own-run time recorded")
+        print(f"             the recipe run by hand (python figure.py, Agg, saved as the "
+              f"naive contender saves) {hand:.2f} s "
+              f"(ratio {figures['one_changed_s'] / hand:.2f}x)")
     out = HERE / "results"
     out.mkdir(exist_ok=True)
     path = out / f"{datetime.now(timezone.utc).strftime('%Y%m%dT%H%M%S')}.json"

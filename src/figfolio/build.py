@@ -8,10 +8,12 @@ this file only decides what happens in which order and gathers the results.
 Where the time goes, and why the pass is shaped this way (benchmarks/bench_build.py measures
 it): recipes run in warm workers, longest expected first; each worker also stages its own
 results (digests, thumbnails, audit, data summaries; poststep.py), so the main thread only
-stores them. A pass where nothing changed stats files, reuses the screen verdicts of
-unchanged data, and publishes nothing when the site on disk was made from the same view
-(site_state.py); a pass with changes re-renders only the pages that show them. None of the
-no-op path imports numpy, pandas, matplotlib or Pillow.
+stores them. A pass where nothing changed is answered from ``build/cache/noop.json`` after one
+stat walk (noop.py) without loading a recipe. When that check fails, a pass still stats files
+rather than hashing them, reuses the screen verdicts of unchanged data, and publishes nothing
+when the site on disk was made from the same view (site_state.py); a pass with changes
+re-renders only the pages that show them. Neither no-op path imports numpy, pandas,
+matplotlib or Pillow.
 """
 from __future__ import annotations
 
@@ -28,7 +30,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Callable
 
-from figfolio import __version__, approval
+from figfolio import __version__, approval, noop
 from figfolio.atomic import write_text
 from figfolio.cache import RECORD, Cache, Entry
 from figfolio.errors import DataScreenError, FigfolioError
@@ -93,6 +95,11 @@ class Report:
     cached: int
     site: Path | None = None
     timings: dict[str, float] = field(default_factory=dict)
+    # True when the pass was answered from build/cache/noop.json (nothing changed); else
+    # fast_miss says why not ("inputs changed", "--force", ...).
+    fast: bool = False
+    fast_miss: str = ""
+    shown: list[str] = field(default_factory=list)   # slugs of the published recipe pages
 
     def counts(self) -> dict[str, int]:
         out: dict[str, int] = {}
@@ -200,7 +207,7 @@ def _outcome(recipe: Recipe, entry: Entry, from_cache: bool, settings: Settings,
         if row.name in unstable:
             row.verdict, row.detail = "unstable", unstable[row.name]
         if row.verdict in ("drifted", "changed") and approved is not None:
-            old = approved.outputs.get(row.name, {})
+            old = approved.outputs.get(row.name)
             new_path = entry.path(row.name)
             if row.name.endswith(".png") and new_path.is_file():
                 diff = entry.dir / "diff" / row.name
@@ -246,46 +253,104 @@ def _compare_rounds(first: RunResult, others: list[RunResult]) -> dict[str, str]
 
 
 def run_pass(settings: Settings, options: Options) -> Report:
-    """Plan, execute, fingerprint, audit and judge; publish the site when asked."""
+    """Plan, execute, fingerprint, audit and judge; publish the site when asked.
+
+    A ``build`` or ``verify`` whose inputs, cache and site are exactly as the last successful
+    pass left them is answered from ``build/cache/noop.json`` (noop.py) without loading a
+    recipe; ``--force`` and ``--repeat`` always take the full path.
+    """
     started = time.perf_counter()
     TIMINGS.clear()
+    if not settings.recipes_path.is_dir():
+        discover(settings)  # raises the error that names the missing folder; creates nothing
+    cache = Cache(settings.cache_path)
+    with cache.lock():
+        t0 = time.perf_counter()
+        snapshot = noop.inputs_digest(settings, options) if _replayable(options) else None
+        miss = "--force" if options.force else "not a plain build or verify"
+        if snapshot is not None and not options.force:
+            replay, miss = noop.check(settings, snapshot)
+            if replay is not None:
+                _timed("noop_check", time.perf_counter() - t0)
+                return _replayed(settings, options, replay, started)
+        noop.forget(settings)
+        _timed("noop_check", time.perf_counter() - t0)
+        report = _full_pass(settings, options, cache)
+        report.fast_miss = miss
+        if snapshot is not None:
+            shown = report.shown if report.site is not None else []
+            t0 = time.perf_counter()
+            noop.record(settings, snapshot, report.site, shown, report.outcomes,
+                        report.problems)
+            _timed("noop_record", time.perf_counter() - t0)
+    report.seconds = time.perf_counter() - started
+    report.timings = dict(TIMINGS, total=report.seconds)
+    return report
+
+
+def _replayable(options: Options) -> bool:
+    """Passes whose summary a later identical pass may replay: plain build and verify.
+
+    Not approve (it writes fingerprints.json from the full outcomes) and not ``--repeat``
+    (its ``unstable`` verdicts come from the repeated runs, which a replay would not make).
+    """
+    return options.command in ("build", "verify") and max(options.repeat, 1) == 1
+
+
+def _replayed(settings: Settings, options: Options, replay: "noop.Replay", started: float
+              ) -> Report:
+    """The Report of a pass where nothing changed, as the full path would have made it."""
+    outcomes = replay.outcomes
+    progress = Progress(len(outcomes), options.command, quiet=options.quiet)
+    for outcome in outcomes:
+        progress.step(outcome.recipe.slug, "cached")
+    report = Report(outcomes=outcomes, problems=replay.problems, seconds=0.0, ran=0,
+                    cached=len(outcomes), fast=True)
+    _write_last(settings, report, options)
+    if options.publish and options.command != "approve":
+        report.site = replay.site
+        _timed("site_unchanged", 1.0)   # as on the full path: the site on disk is current
+    report.seconds = time.perf_counter() - started
+    report.timings = dict(TIMINGS, total=report.seconds)
+    return report
+
+
+def _full_pass(settings: Settings, options: Options, cache: Cache) -> Report:
+    """Every step, for a pass that cannot be replayed (the caller holds the lock)."""
     if settings.audit.errors:
         from figfolio import audit
         audit.check_error_codes(settings)
     t0 = time.perf_counter()
     recipes, problems = discover(settings, options.slugs or None)
     _timed("discover", time.perf_counter() - t0)
-    cache = Cache(settings.cache_path)
-    with cache.lock():
+    t0 = time.perf_counter()
+    keys = {r.slug: cache.input_key(r, settings) for r in recipes}
+    _timed("plan", time.perf_counter() - t0)
+    t0 = time.perf_counter()
+    blocking = screen_all(recipes, settings, cache, keys) if recipes else ""
+    _timed("screen", time.perf_counter() - t0)
+    if blocking:
+        raise DataScreenError(
+            "the data screen found likely identifiers or small counts that no recipe has "
+            "acknowledged:\n" + blocking,
+            hint="remove or coarsen those columns, or acknowledge each one in the recipe's "
+                 "[screen.acknowledged] with a reason; the screen is an aid, not a "
+                 "guarantee: your data governance decides what may be shared")
+    t0 = time.perf_counter()
+    outcomes, ran, cached = _execute(settings, options, recipes, cache, keys)
+    _timed("execute", time.perf_counter() - t0)
+    report = Report(outcomes=outcomes, problems=problems, ran=ran, cached=cached,
+                    seconds=0.0)
+    _write_last(settings, report, options)
+    if options.publish and options.command != "approve":
+        shown = outcomes
+        if options.slugs:  # a partial build still publishes every cached recipe
+            done = {o.recipe.slug for o in outcomes}
+            shown = outcomes + _cached_outcomes(settings, cache, done)
         t0 = time.perf_counter()
-        keys = {r.slug: cache.input_key(r, settings) for r in recipes}
-        _timed("plan", time.perf_counter() - t0)
-        t0 = time.perf_counter()
-        blocking = screen_all(recipes, settings, cache, keys) if recipes else ""
-        _timed("screen", time.perf_counter() - t0)
-        if blocking:
-            raise DataScreenError(
-                "the data screen found likely identifiers or small counts that no recipe has "
-                "acknowledged:\n" + blocking,
-                hint="remove or coarsen those columns, or acknowledge each one in the recipe's "
-                     "[screen.acknowledged] with a reason; the screen is an aid, not a "
-                     "guarantee: your data governance decides what may be shared")
-        t0 = time.perf_counter()
-        outcomes, ran, cached = _execute(settings, options, recipes, cache, keys)
-        _timed("execute", time.perf_counter() - t0)
-        report = Report(outcomes=outcomes, problems=problems, ran=ran, cached=cached,
-                        seconds=0.0)
-        _write_last(settings, report, options)
-        if options.publish and options.command != "approve":
-            shown = outcomes
-            if options.slugs:  # a partial build still publishes every cached recipe
-                done = {o.recipe.slug for o in outcomes}
-                shown = outcomes + _cached_outcomes(settings, cache, done)
-            t0 = time.perf_counter()
-            report.site = publish(settings, shown, options)
-            _timed("site", time.perf_counter() - t0)
-    report.seconds = time.perf_counter() - started
-    report.timings = dict(TIMINGS, total=report.seconds)
+        report.site = publish(settings, shown, options)
+        report.shown = [o.recipe.slug for o in shown]
+        _timed("site", time.perf_counter() - t0)
     return report
 
 
@@ -436,7 +501,7 @@ def _write_last(settings: Settings, report: Report, options: Options) -> None:
     payload = {"command": options.command, "date": _now(), "rows": rows}
     target = settings.cache_path / "last-verdicts.json"
     tmp = target.with_suffix(".tmp")
-    tmp.write_text(json.dumps(payload, indent=1, sort_keys=True))
+    tmp.write_text(json.dumps(payload, sort_keys=True))  # no indent: the C encoder, 5x faster
     os.replace(tmp, target)
 
 
@@ -490,7 +555,8 @@ def publish(settings: Settings, outcomes: list[Outcome], options: Options) -> Pa
         return out
     from figfolio import site
 
-    site.publish(view, settings, out, changed_slugs=changed, state=state)
+    site.publish(view, settings, out, state=state,
+                 changed_slugs=changed if isinstance(changed, set) else None)
     return out
 
 

@@ -80,21 +80,31 @@ def stack_fingerprint() -> tuple[tuple[str, str], ...]:
 
 def input_files(folder: Path) -> list[Path]:
     """Every file of a recipe that can change what it draws, sorted by relative path."""
-    out: list[Path] = []
+    return [Path(full) for _, full in _input_rows(str(folder))]
 
-    def walk(current: str) -> None:
+
+def _input_rows(folder: str) -> list[tuple[str, str]]:
+    """(relative posix path, absolute path) of ``input_files``, as strings.
+
+    Strings, not Path objects: the input key is computed for every recipe on every full pass,
+    and building and relativising Path objects was most of its time.
+    """
+    out: list[tuple[str, str]] = []
+
+    def walk(current: str, prefix: str) -> None:
         with os.scandir(current) as it:
             for entry in it:
                 if entry.name.startswith(".") or entry.name == "__pycache__":
                     continue
                 if entry.is_dir(follow_symlinks=False):
-                    walk(entry.path)
+                    walk(entry.path, prefix + entry.name + "/")
                 elif entry.is_file(follow_symlinks=False) and not (
-                        current == str(folder) and entry.name in NOT_INPUTS):
-                    out.append(Path(entry.path))
+                        not prefix and entry.name in NOT_INPUTS):
+                    out.append((prefix + entry.name, entry.path))
 
-    walk(str(folder))
-    return sorted(out, key=lambda p: p.relative_to(folder).as_posix())
+    walk(folder, "")
+    out.sort()
+    return out
 
 
 @dataclass
@@ -186,17 +196,17 @@ class Cache:
                 self._stats = {}
         return self._stats
 
-    def file_digest(self, path: Path) -> str:
+    def file_digest(self, path: Path | str) -> str:
         """sha256 of a file, from the stat table when size and mtime are unchanged."""
         table = self._table()
         name = str(path)
-        st = os.stat(path)
+        st = os.stat(name)
         self._touched.add(name)
         known = table.get(name)
         if isinstance(known, list) and len(known) == 3 and known[0] == st.st_size \
                 and known[1] == st.st_mtime_ns:
             return str(known[2])
-        digest = hash_file(path)
+        digest = hash_file(Path(path))
         racy = time.time_ns() - st.st_mtime_ns < RACY_SECONDS * 1e9
         if racy:
             table.pop(name, None)   # ask again next time: an edit in the same tick is invisible
@@ -214,9 +224,8 @@ class Cache:
         digest.update(f"settings {settings.run_digest()}\n".encode())
         digest.update(f"extra {json.dumps(dict(extra or {}), sort_keys=True, default=str)}\n"
                       .encode())
-        for path in input_files(recipe.folder):
-            rel = path.relative_to(recipe.folder).as_posix()
-            digest.update(f"file {rel}\0{self.file_digest(path)}\n".encode())
+        for rel, full in _input_rows(str(recipe.folder)):
+            digest.update(f"file {rel}\0{self.file_digest(full)}\n".encode())
         return digest.hexdigest()
 
     def flush(self) -> None:
