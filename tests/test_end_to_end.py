@@ -194,3 +194,12 @@ def test_unstable_under_repeat(catalogue: Path):
     v = verdicts(catalogue / "r.xml")
     assert v["unseeded/figure-1.png"] == "unstable"
     assert v["bars/figure-1.png"] != "unstable" and v["line/figure-1.png"] != "unstable"
+
+
+def test_write_into_another_recipe_is_reported(catalogue: Path):
+    # A recipe that writes outside its scratch copy, into another recipe's folder, is named.
+    target = catalogue / "recipes" / "bars" / "data" / "planted.csv"
+    add(catalogue, "vandal", f"open({str(target)!r}, 'w').write('x\\n')\n" + LINE)
+    run = figfolio(catalogue, "build")
+    assert "the catalogue changed while recipes ran" in run.stdout, run.stdout
+    assert "recipes/bars/data/planted.csv" in run.stdout

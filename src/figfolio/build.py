@@ -380,6 +380,7 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
         staged_jobs = [dataclasses.replace(j, post=PostSpec(by_slug[j.slug], settings))
                        for j in jobs]
         work = Path(tempfile.mkdtemp(prefix="work-", dir=_tmp_dir(cache)))
+        marks = _catalogue_marks(settings)
         executor = make_executor(settings, options.executor, options.scheduler,
                                  jobs=options.jobs, preload=imported_modules(todo))
         rounds: dict[str, list[RunResult]] = {r.slug: [] for r in todo}
@@ -409,6 +410,9 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
                 unstable[slug] = _compare_rounds(first, results[1:]) if first.status == "ok" \
                     else {}
         shutil.rmtree(work, ignore_errors=True)
+        changed = _changed_marks(marks, _catalogue_marks(settings))
+    else:
+        changed = []
     outcomes = []
     for recipe in recipes:
         entry = entries.get(recipe.slug)
@@ -416,7 +420,55 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
             continue
         outcomes.append(_outcome(recipe, entry, recipe not in todo, settings, cache,
                                  unstable.get(recipe.slug, {})))
+    strays = _stray_writes(settings, changed, outcomes, [r.slug for r in todo])
+    for outcome in outcomes:
+        if strays and outcome.recipe in todo:
+            outcome.result.warnings = list(outcome.result.warnings) + strays
     return outcomes, len(todo), len(recipes) - len(todo)
+
+
+def _catalogue_marks(settings: Settings) -> dict[str, tuple[int, int]]:
+    """(size, mtime_ns) of the catalogue's files outside build/: recipes/ and the top level.
+
+    Why: each worker reports writes into its own recipe's folder; a write anywhere else in the
+    catalogue (another recipe, the settings) can only be seen from here, before and after.
+    """
+    from figfolio.runner_capture import snapshot
+
+    marks = {f"{settings.recipes_dir}/{rel}": stat
+             for rel, stat in snapshot(settings.recipes_path).items()}
+    try:
+        with os.scandir(settings.root) as entries:
+            for entry in entries:
+                if entry.is_file(follow_symlinks=False):
+                    info = entry.stat(follow_symlinks=False)
+                    marks[entry.name] = (info.st_size, info.st_mtime_ns)
+    except OSError:
+        pass
+    return marks
+
+
+def _changed_marks(before: dict[str, tuple[int, int]], after: dict[str, tuple[int, int]]
+                   ) -> list[str]:
+    from figfolio.runner_capture import changed_files
+
+    return changed_files(before, after) + sorted(rel for rel in before if rel not in after)
+
+
+def _stray_writes(settings: Settings, changed: list[str], outcomes: list[Outcome],
+                  ran: list[str]) -> list[str]:
+    """A warning for catalogue files that changed while recipes ran and that no recipe's own
+    folder check has already reported."""
+    reported = {f"{settings.recipes_dir}/{o.recipe.slug}/{w.split(': ', 1)[1]}"
+                for o in outcomes for w in o.result.warnings
+                if w.startswith("tried to write into recipe folder: ")}
+    stray = [rel for rel in changed if rel not in reported]
+    if not stray:
+        return []
+    who = ran[0] if len(ran) == 1 else f"one of the {len(ran)} recipes run in this pass"
+    shown = ", ".join(stray[:5]) + (f" and {len(stray) - 5} more" if len(stray) > 5 else "")
+    return [f"the catalogue changed while recipes ran ({who}?): {shown}; recipes must write "
+            "only in their scratch folder"]
 
 
 def _expected_seconds(recipe: Recipe, cache: Cache) -> float:
