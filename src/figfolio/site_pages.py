@@ -42,8 +42,13 @@ def _output_name(name: str, slug: str) -> str:
     return parts[0]
 
 
-def thumb_url(slug: str, size: int) -> str:
-    return url("r", slug, f"thumb-{size}.png")
+def thumb_name(size: int | str, source: Path | str) -> str:
+    """The thumbnail's file name in the site, keeping its real format's suffix (WebP or PNG)."""
+    return f"thumb-{int(size)}{Path(source).suffix.lower() or '.png'}"
+
+
+def thumb_url(slug: str, size: int, source: Path | str) -> str:
+    return url("r", slug, thumb_name(size, source))
 
 
 # Flat names beside the page (no sub-folders): folder operations dominate publishing time on
@@ -92,7 +97,7 @@ def place_recipe(entry: dict[str, Any], folder: Path) -> None:
             if out.get(key):
                 copy_file(Path(out[key]), folder / diff_file(name, which))
     for size, path in (entry.get("thumbs") or {}).items():
-        copy_file(Path(path), folder / f"thumb-{int(size)}.png")
+        copy_file(Path(path), folder / thumb_name(size, path))
     for figure, images in ((entry.get("audit") or {}).get("images") or {}).items():
         for kind in AUDIT_KINDS:
             if images.get(kind):
@@ -116,9 +121,9 @@ def card(entry: dict[str, Any], number: int) -> dict[str, Any]:
         "summary": entry.get("summary", ""), "alt": entry.get("alt", ""),
         "verdict": entry.get("verdict", "unapproved"), "findings": len(findings),
         "href": url("r", slug, "index.html"),
-        "thumb": thumb_url(slug, 320) if small else None,
-        "srcset": ", ".join(f"{thumb_url(slug, s)} {s}w" for s in THUMB_SIZES
-                            if thumbs.get(s) or thumbs.get(str(s))),
+        "thumb": thumb_url(slug, 320, small) if small else None,
+        "srcset": ", ".join(f"{thumb_url(slug, s, thumbs.get(s) or thumbs.get(str(s)))} {s}w"
+                            for s in THUMB_SIZES if thumbs.get(s) or thumbs.get(str(s))),
         "thumb_size": size, "tags": entry.get("tags") or [],
     }
 
