@@ -110,10 +110,12 @@ class Settings:
         return self.jobs or (os.cpu_count() or 1)
 
     def run_digest(self) -> str:
-        """Digest of the settings that change what a recipe *produces*; part of the cache key."""
+        """Digest of the settings that change what a stored run holds; part of the cache key."""
         relevant = {"formats": list(self.formats), "dpi": self.dpi, "timeout": self.timeout,
                     "memory_mb": self.memory_mb, "max_pixels": self.max_pixels,
-                    "network": self.network}
+                    "network": self.network,
+                    # the stored record also holds the audit and the data summaries
+                    "audit": asdict(self.audit), "sample_rows": self.screen.sample_rows}
         return hashlib.sha256(json.dumps(relevant, sort_keys=True).encode()).hexdigest()
 
     def as_dict(self) -> dict[str, Any]:
