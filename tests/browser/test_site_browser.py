@@ -14,7 +14,7 @@ import subprocess
 import sys
 import threading
 import zipfile
-from http.server import SimpleHTTPRequestHandler, ThreadingHTTPServer
+from http.server import ThreadingHTTPServer
 from pathlib import Path
 
 import pytest
@@ -25,6 +25,7 @@ import site_view  # noqa: E402
 
 from figfolio.site import publish  # noqa: E402
 from figfolio.site_search import entry_fields, tokenize  # noqa: E402
+from site_watch import Quiet, new_page  # noqa: E402  (shared with the demo-site tests)
 
 CHROMIUM = Path("/usr/bin/chromium")
 ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
@@ -35,18 +36,6 @@ PREFIX = "/team/figs/"
 pytestmark = [pytest.mark.browser,
               pytest.mark.skipif(not CHROMIUM.exists(),
                                  reason="Debian chromium is not installed at /usr/bin/chromium")]
-
-RECORDER = """
-window.__violations = [];
-document.addEventListener('securitypolicyviolation', function (e) {
-  window.__violations.push(e.violatedDirective + ' ' + e.blockedURI);
-});
-"""
-
-
-class Quiet(SimpleHTTPRequestHandler):
-    def log_message(self, *args):  # keep test output clean
-        pass
 
 
 @pytest.fixture(scope="module")
@@ -75,41 +64,6 @@ def browser():
         yield b
         b.close()
 
-
-class Watch:
-    """Records console errors, page errors, dialogs and every request of one page."""
-
-    def __init__(self, page, base: str) -> None:
-        self.errors: list[str] = []
-        self.dialogs: list[str] = []
-        self.requests: list[str] = []
-        self.base = base
-        page.on("console", lambda m: m.type == "error" and self.errors.append(m.text))
-        page.on("pageerror", lambda e: self.errors.append(str(e)))
-        page.on("dialog", self._dialog)
-        page.on("request", lambda r: self.requests.append(r.url))
-        page.add_init_script(RECORDER)
-
-    def _dialog(self, dialog) -> None:
-        self.dialogs.append(dialog.message)
-        dialog.dismiss()
-
-    def outside(self) -> list[str]:
-        return [u for u in self.requests if not u.startswith(self.base)]
-
-
-def new_page(browser, base: str, **kwargs):
-    context = browser.new_context(accept_downloads=True, **kwargs)
-
-    def guard(route):
-        # Any request leaving the site is refused (and recorded by Watch).
-        if route.request.url.startswith(base):
-            route.continue_()
-        else:
-            route.abort()
-    context.route("**/*", guard)
-    page = context.new_page()
-    return context, page, Watch(page, base)
 
 
 def visible_slugs(page) -> list[str]:
