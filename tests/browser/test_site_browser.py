@@ -8,6 +8,7 @@ is checked with axe-core from the npm registry (tests/browser/package.json; `npm
 from __future__ import annotations
 
 import functools
+import json
 import shutil
 import statistics
 import subprocess
@@ -26,6 +27,9 @@ import site_view  # noqa: E402
 from figfolio.site import publish  # noqa: E402
 from figfolio.site_search import entry_fields, tokenize  # noqa: E402
 from site_watch import Quiet, new_page  # noqa: E402  (shared with the demo-site tests)
+
+sys.path.insert(0, str(HERE.parents[1] / "benchmarks"))
+from search_timing import INDEX_JS, SEARCH_JS, SEARCH_QUERIES  # noqa: E402  (same as the benchmark)
 
 CHROMIUM = Path("/usr/bin/chromium")
 ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
@@ -212,21 +216,7 @@ def test_search_keystroke_over_5000_recipes(browser, tmp_path):
         "<script src=search.js></script>", "utf-8")
     page = browser.new_page()
     page.goto((tmp_path / "bench.html").as_uri())
-    times = page.evaluate("""() => {
-      const idx = window.FIGFOLIO_INDEX, S = window.FigfolioSearch, out = [];
-      const queries = ['f','fo','for','fore','fores','forest','forest p','forest pl',
-        'k','ka','kap','kaplan','kaplan m','kaplan me','s','sc','sca','scatter','d','do','dose',
-        'dose r','dose res','dose response','a','au','aut','author','author 1','author 12'];
-      for (let round = 0; round < 3; round++) {
-        for (const q of queries) {
-          const t0 = performance.now();
-          S.run(idx, q, {tag: [], method: [], verdict: round === 2 ? ['drifted'] : [],
-                         origin: [], audit: []});
-          out.push(performance.now() - t0);
-        }
-      }
-      return out;
-    }""")
+    times = page.evaluate(SEARCH_JS % json.dumps(SEARCH_QUERIES))
     median = statistics.median(times)
     print(f"\nsearch over 5,000 recipes: median {median:.2f} ms, max {max(times):.2f} ms "
           f"(index {len((tmp_path / 'search-index.js').read_bytes()) / 1e6:.1f} MB)")
@@ -247,19 +237,7 @@ def test_index_page_keystroke_with_5000_cards(browser, tmp_path):
     page.goto((tmp_path / "site" / "index.html").as_uri())
     page.wait_for_function("document.getElementById('fol-status').textContent.includes('first')")
     assert page.locator("#fol-cards li:not([hidden])").count() == 120
-    times = page.evaluate("""async () => {
-      const input = document.getElementById('fol-q'), out = [];
-      for (const q of ['f','fo','for','fore','fores','forest','k','ka','kap','kapl','kaplan',
-                       's','sc','sca','d','do','dos','dose']) {
-        const t0 = performance.now();
-        input.value = q;
-        input.dispatchEvent(new Event('input'));
-        document.body.offsetHeight;            // force style and layout
-        out.push(performance.now() - t0);
-        await new Promise(r => requestAnimationFrame(() => setTimeout(r, 0)));
-      }
-      return out;
-    }""")
+    times = page.evaluate(INDEX_JS)
     median = statistics.median(times)
     print(f"\nindex keystroke with 5,000 cards (search + DOM + layout): median {median:.1f} ms, "
           f"max {max(times):.1f} ms")
