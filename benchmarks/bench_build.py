@@ -10,7 +10,8 @@ contenders in one run so machine noise hits them alike:
   (c) ``figfolio build`` cold; (d) with nothing changed (answered from build/cache/noop.json;
       at scale also the full no-op path without it); (e) after one data file changed, against
       that recipe's own run in its worker and against running it by hand (``python figure.py``
-      with Agg, saving like (a), interpreter start included);
+      with Agg, saving like (a), interpreter start included); and as ``figfolio serve`` does
+      it, on workers kept warm since the server started;
   (f) peak memory of the builder and of its biggest child; (g) the audit's and the site's share.
 Scale run: 1,000 tiny recipes for the no-op and site-rendering figures; search timing in
 headless Chromium over a 5,000-recipe index (``search_timing.py``).
@@ -60,7 +61,7 @@ FLOOR = r'''
 import json, os, runpy, sys, time, matplotlib
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt
-import numpy, pandas, scipy.cluster.hierarchy
+import numpy, pandas, scipy.cluster.hierarchy, scipy.stats, statsmodels.api
 plt.show = lambda *a, **k: None
 formats = sys.argv[1].split(",")
 out = sys.argv[2]
@@ -99,6 +100,28 @@ print(json.dumps({"wall": wall, "ran": report.ran, "cached": report.cached,
                   "heavy_modules": heavy[:5]}))
 '''
 
+WARM_POOL_CHANGE = r'''
+import json, sys, time
+from pathlib import Path
+from figfolio.build import Options, run_pass, warm_pool
+from figfolio.executor import warm
+from figfolio.settings import load_settings
+root = Path(sys.argv[1])
+settings = load_settings(root)
+pool = warm_pool(settings)
+warm(pool, 2)
+run_pass(settings, Options(quiet=True), pool=pool)      # nothing changed: replayed
+time.sleep(4)                                           # the workers finish warming up
+data = Path(sys.argv[2])
+lines = data.read_text().splitlines()
+data.write_text("\n".join(lines + [lines[-1]]) + "\n")
+t0 = time.perf_counter()
+report = run_pass(settings, Options(quiet=True), pool=pool)
+wall = time.perf_counter() - t0
+pool.close()
+print(json.dumps({"wall": wall, "ran": report.ran, "timings": report.timings}))
+'''
+
 SPIN = r'''
 import time
 t0 = time.perf_counter()
@@ -133,6 +156,26 @@ def naive(root: Path, formats: str) -> float:
     seconds = time.perf_counter() - t0
     shutil.rmtree(out, ignore_errors=True)
     return seconds
+
+
+def import_seconds(root: Path, times: int = 3) -> float:
+    """What starting the stack costs the naive way: for each distinct script, the median time
+    of a fresh interpreter that runs only its import lines; summed over the recipes."""
+    by_script: dict[str, int] = {}
+    for script in (root / "recipes").glob("*/figure.py"):
+        head = "\n".join(line for line in script.read_text().splitlines()
+                         if line.startswith(("import ", "from ")))
+        by_script[head] = by_script.get(head, 0) + 1
+    total = 0.0
+    for head, count in by_script.items():
+        runs = []
+        for _ in range(times):
+            t0 = time.perf_counter()
+            subprocess.run([python(), "-c", head], check=True, capture_output=True,
+                           env=dict(os.environ, MPLBACKEND="Agg"))
+            runs.append(time.perf_counter() - t0)
+        total += statistics.median(runs) * count
+    return total
 
 
 def floor(root: Path, formats: str) -> tuple[float, float]:
@@ -224,6 +267,23 @@ def change_one(root: Path, formats: str = "png,svg,pdf") -> tuple[dict, float, f
     return result, own, by_hand(folder, formats)
 
 
+def change_one_warm(root: Path) -> tuple[dict, float]:
+    """(e) as ``figfolio serve`` does it: the workers were started with the server and kept
+    warm, then one data file changes and the pass runs on them. Returns the pass and that
+    recipe's own run time in its worker."""
+    folder = sorted((root / "recipes").iterdir())[8]
+    data = next(p for p in (folder / "data").iterdir() if p.suffix == ".csv")
+    run = subprocess.run([python(), "-c", WARM_POOL_CHANGE, str(root), str(data)],
+                         capture_output=True, text=True, env=dict(os.environ, CI="1"))
+    if run.returncode != 0:
+        raise SystemExit(f"figfolio build with a warm pool failed:\n{run.stderr[-3000:]}")
+    result = json.loads(run.stdout.strip().splitlines()[-1])
+    own = 0.0
+    for record in (root / "build" / "cache" / "runs" / folder.name).rglob("record.json"):
+        own = json.loads(record.read_text())["run"]["duration"]
+    return result, own
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__,
                                      formatter_class=argparse.RawDescriptionHelpFormatter)
@@ -266,14 +326,16 @@ def main_catalogue(figures: dict, work: Path, n: int, rounds: int, skip_naive: b
     figures["lint_passes"] = lint_passes(all_root)
     sizes = [f.stat().st_size for f in (all_root / "recipes").glob("*/data/*")]
     figures["data_kb_min"], figures["data_kb_max"] = min(sizes) / 1024, max(sizes) / 1024
-    runs: dict[str, list[float]] = {k: [] for k in ("naive_png", "cold_png", "floor_all_serial",
-                                                     "floor_all_cpu", "cold_all")}
+    runs: dict[str, list[float]] = {k: [] for k in ("naive_png", "cold_png", "floor_png_serial",
+                                                     "floor_all_serial", "floor_all_cpu",
+                                                     "cold_all")}
     detail: dict = {}
     for r in range(rounds):  # alternate the contenders so noise hits them alike
         if not skip_naive:
             runs["naive_png"].append(naive(png_root, "png"))
         detail["cold_png"] = cold(png_root)
         runs["cold_png"].append(detail["cold_png"]["wall"])
+        runs["floor_png_serial"].append(floor(png_root, "png")[0])
         serial, cpu = floor(all_root, "png,svg,pdf")
         runs["floor_all_serial"].append(serial)
         runs["floor_all_cpu"].append(cpu)
@@ -286,6 +348,8 @@ def main_catalogue(figures: dict, work: Path, n: int, rounds: int, skip_naive: b
     floor_all = med["floor_all_serial"] / CORES
     cold_all = detail["cold_all"]
     figures.update({
+        "floor_png_s": med["floor_png_serial"] / CORES,
+        "ratio_cold_over_floor_png": med["cold_png"] / (med["floor_png_serial"] / CORES),
         "cold_png_s": med["cold_png"], "cold_all_s": med["cold_all"],
         "floor_all_s": floor_all, "floor_all_serial_s": med["floor_all_serial"],
         "floor_all_effective_s": med["floor_all_serial"] / max(speedup, 1.0),
@@ -297,11 +361,19 @@ def main_catalogue(figures: dict, work: Path, n: int, rounds: int, skip_naive: b
         "cold_all_counts": cold_all["counts"],
     })
     if "naive_png" in med:
+        imports = import_seconds(png_root)
         figures.update({"naive_png_s": med["naive_png"],
+                        "naive_import_s": imports,
+                        "naive_import_share": imports / med["naive_png"],
                         "ratio_cold_over_naive_png": med["cold_png"] / med["naive_png"]})
     noop = builder(all_root)
     noop_cli = statistics.median(cli_seconds(all_root, "build") for _ in range(3))
     changed, own, hand = change_one(all_root)
+    warm_changed, warm_own = change_one_warm(all_root)
+    figures.update({"one_changed_warm_pool_s": warm_changed["wall"],
+                    "one_changed_warm_pool_own_run_s": warm_own,
+                    "one_changed_warm_pool_over_own_s": warm_changed["wall"] - warm_own,
+                    "one_changed_warm_pool_ran": warm_changed["ran"]})
     t = cold_all["timings"]
     work_s = sum(t.get(k, 0.0) for k in ("digests", "audit", "data"))
     figures.update({
@@ -364,6 +436,7 @@ def report(figures: dict) -> None:
                ("cold/floor (all formats)", "ratio_cold_over_floor_all", 1.15),
                ("no-op at scale (s)", "scale_noop_s", 0.5),
                ("one changed minus own run (s)", "one_changed_over_own_s", 1.0),
+               ("  the same, serve's warm pool (s)", "one_changed_warm_pool_over_own_s", 1.0),
                ("builder peak at scale (MB)", "scale_builder_peak_mb", 250.0),
                ("search keystroke median (ms)", "search_keystroke_median_ms", 16.0)]
     print("\ntargets:")

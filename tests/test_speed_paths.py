@@ -365,3 +365,83 @@ def test_a_page_deleted_by_hand_is_published_again(catalogue: Path) -> None:
     again = run_pass(settings, Options(quiet=True))
     assert again.ran == 0 and "site_unchanged" not in again.timings
     assert page.is_file()
+
+
+def test_serve_pool_stays_warm_between_passes_and_is_not_closed(catalogue: Path) -> None:
+    """``figfolio serve`` keeps its workers: a rebuild after an edit runs on the same worker
+    processes (no second warm-up), and a pass never closes a pool it was lent."""
+    settings = load_settings(catalogue)
+    pool = build.warm_pool(settings, jobs=1)
+    assert isinstance(pool, LocalExecutor)
+    try:
+        first = run_pass(settings, Options(quiet=True), pool=pool)
+        assert first.ran == 3
+        pids = [w.proc.pid for w in pool._workers if w.proc is not None]
+        assert len(pids) == 1 and pool._workers[0].proc.poll() is None   # still running
+        data = catalogue / "recipes" / "line-2" / "data" / "values.csv"
+        data.write_text(data.read_text() + "99,1.5\n")
+        second = run_pass(settings, Options(quiet=True), pool=pool)
+        assert second.ran == 1 and second.outcomes
+        assert [w.proc.pid for w in pool._workers if w.proc is not None] == pids
+    finally:
+        pool.close()
+    assert all(w.proc is None for w in pool._workers) or not pool._workers
+
+
+def test_workers_start_before_the_screen_and_stop_when_it_blocks(
+        catalogue: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """The workers warm up while the builder screens the data; a screen that stops the build
+    leaves no worker behind."""
+    started: list[LocalExecutor] = []
+    real_warm = LocalExecutor.warm
+
+    def spy(self: LocalExecutor, count: int) -> None:
+        started.append(self)
+        real_warm(self, count)
+
+    def blocking(*args: object, **kwargs: object) -> str:
+        assert started and started[0]._workers[0].proc is not None   # already launched
+        return "recipes/line-0/data/values.csv: column 'name' looks like an identifier"
+
+    monkeypatch.setattr(LocalExecutor, "warm", spy)
+    monkeypatch.setattr(build, "screen_all", blocking)
+    from figfolio.errors import DataScreenError
+    with pytest.raises(DataScreenError):
+        run_pass(load_settings(catalogue), Options(quiet=True))
+    assert started and all(w.proc is None for w in started[0]._workers)
+
+
+REHEARSAL_CHECK = r'''
+import json, os, sys, tempfile
+import matplotlib
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt
+fresh = {k: repr(v) for k, v in matplotlib.rcParams.items()}
+cwd, env = os.getcwd(), dict(os.environ)
+from figfolio import worker, runner_capture
+worker.warm_up()
+from importlib import metadata
+print(json.dumps({
+    "figures": plt.get_fignums(),
+    "rc_changed": sorted(k for k, v in matplotlib.rcParams.items() if repr(v) != fresh[k]),
+    "cwd_same": os.getcwd() == cwd, "env_same": dict(os.environ) == env,
+    "left": [n for n in os.listdir(tempfile.gettempdir()) if n.startswith("figfolio-rehearsal-")],
+    "versions_ok": all(metadata.version(d) == v
+                       for d, v in runner_capture._LOADED_VERSIONS.items()),
+    "versions": len(runner_capture._LOADED_VERSIONS),
+}))
+'''
+
+
+def test_worker_rehearsal_leaves_no_trace(tmp_path: Path) -> None:
+    """The warm worker stages its own tiny recipe once before forking (so the forks inherit
+    the codecs and tables it set up); afterwards no figure is open, rcParams, the working
+    folder and the environment are as before, no temporary folder is left, and the versions
+    it remembered are what importlib.metadata (the reference) reports."""
+    env = dict(os.environ, TMPDIR=str(tmp_path), MPLBACKEND="Agg")
+    run = subprocess.run([sys.executable, "-c", REHEARSAL_CHECK], capture_output=True,
+                         text=True, env=env, cwd=tmp_path, check=True)
+    got = json.loads(run.stdout.strip().splitlines()[-1])
+    assert got["figures"] == [] and got["rc_changed"] == []
+    assert got["cwd_same"] and got["env_same"] and got["left"] == []
+    assert got["versions_ok"] and got["versions"] >= 3   # numpy, pandas, matplotlib at least

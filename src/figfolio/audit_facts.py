@@ -44,11 +44,15 @@ def collect_facts(fig: Any) -> dict[str, Any]:
                              "canvas": {}, "colours": [], "colormaps": [], "texts": [],
                              "axes": []}
     problems: list[str] = []
-    for step in (_figure_size, _colours, _texts, _axes):
-        try:
-            step(fig, facts)
-        except Exception as exc:  # noqa: BLE001 -- the contract is "never raise"
-            problems.append(f"{step.__name__.strip('_')}: {type(exc).__name__}: {exc}")
+    _TICK_MEMO.clear()
+    try:
+        for step in (_figure_size, _colours, _texts, _axes):
+            try:
+                step(fig, facts)
+            except Exception as exc:  # noqa: BLE001 -- the contract is "never raise"
+                problems.append(f"{step.__name__.strip('_')}: {type(exc).__name__}: {exc}")
+    finally:
+        _TICK_MEMO.clear()
     facts["elapsed_ms"] = round((time.perf_counter() - start) * 1000, 2)
     if problems:
         facts["error"] = "; ".join(problems)
@@ -275,10 +279,32 @@ def _axes_texts(ax: Any, index: int) -> list[dict[str, Any]]:
     return out
 
 
+# Tick labels per axis, for the length of one collect_facts call. Why: every public
+# get_ticklabels() call runs the axis' locators and formatters again (about a millisecond per
+# axis), and the texts and the axes steps both need the labels; a 24-panel figure asked for
+# them 144 times, which cost more than the rest of the facts together.
+_TICK_MEMO: dict[int, tuple[Any, list[Any]]] = {}
+
+
+def _tick_labels(axis: Any) -> list[Any]:
+    """Major then minor tick labels of ``axis``, as get_ticklabels(minor=False/True) gives them.
+
+    One ``get_majorticklabels()`` call updates (and formats) the major and the minor ticks
+    alike, so the minor labels are read from the minor ticks without a second update.
+    """
+    memo = _TICK_MEMO.get(id(axis))
+    if memo is not None and memo[0] is axis:
+        return memo[1]
+    labels = list(axis.get_majorticklabels())
+    minor = axis.get_minor_ticks(len(axis.get_minorticklocs()))
+    labels += [t.label1 for t in minor if t.label1.get_visible()]
+    labels += [t.label2 for t in minor if t.label2.get_visible()]
+    _TICK_MEMO[id(axis)] = (axis, labels)
+    return labels
+
+
 def _tick_texts(axis: Any, role: str, index: int) -> list[dict[str, Any]]:
-    labels = [t for t in axis.get_ticklabels(minor=False) if _shown(t)]
-    labels += [t for t in axis.get_ticklabels(minor=True) if _shown(t)]
-    return _grouped(labels, role, index)
+    return _grouped([t for t in _tick_labels(axis) if _shown(t)], role, index)
 
 
 def _grouped(texts: list[Any], role: str, index: int) -> list[dict[str, Any]]:
@@ -320,7 +346,7 @@ def _axes(fig: Any, facts: dict[str, Any]) -> None:
         for name in ("x", "y"):
             axis = getattr(ax, f"{name}axis")
             own = _shown(axis.label)
-            ticks = axis.get_visible() and any(_shown(t) for t in axis.get_ticklabels())
+            ticks = axis.get_visible() and any(_shown(t) for t in _tick_labels(axis))
             shared = getattr(ax, f"get_shared_{name}_axes")().get_siblings(ax)
             elsewhere = sup[name] or any(_shown(getattr(o, f"{name}axis").label)
                                          for o in shared if o is not ax)

@@ -34,7 +34,7 @@ from figfolio import __version__, approval, noop
 from figfolio.atomic import write_text
 from figfolio.cache import RECORD, Cache, Entry
 from figfolio.errors import DataScreenError, FigfolioError
-from figfolio.executor import make_executor
+from figfolio.executor import Executor, Lent, make_executor, warm
 from figfolio.poststep import PostSpec
 from figfolio.progress import Progress
 from figfolio.recipe import Recipe, discover
@@ -252,12 +252,14 @@ def _compare_rounds(first: RunResult, others: list[RunResult]) -> dict[str, str]
     return unstable
 
 
-def run_pass(settings: Settings, options: Options) -> Report:
+def run_pass(settings: Settings, options: Options, pool: Executor | None = None) -> Report:
     """Plan, execute, fingerprint, audit and judge; publish the site when asked.
 
     A ``build`` or ``verify`` whose inputs, cache and site are exactly as the last successful
     pass left them is answered from ``build/cache/noop.json`` (noop.py) without loading a
-    recipe; ``--force`` and ``--repeat`` always take the full path.
+    recipe; ``--force`` and ``--repeat`` always take the full path. ``pool``: an executor the
+    caller keeps between passes (``serve``'s warm workers); used instead of a new one and
+    left running.
     """
     started = time.perf_counter()
     TIMINGS.clear()
@@ -275,7 +277,7 @@ def run_pass(settings: Settings, options: Options) -> Report:
                 return _replayed(settings, options, replay, started)
         noop.forget(settings)
         _timed("noop_check", time.perf_counter() - t0)
-        report = _full_pass(settings, options, cache)
+        report = _full_pass(settings, options, cache, pool)
         report.fast_miss = miss
         if snapshot is not None:
             shown = report.shown if report.site is not None else []
@@ -315,7 +317,8 @@ def _replayed(settings: Settings, options: Options, replay: "noop.Replay", start
     return report
 
 
-def _full_pass(settings: Settings, options: Options, cache: Cache) -> Report:
+def _full_pass(settings: Settings, options: Options, cache: Cache,
+               pool: Executor | None = None) -> Report:
     """Every step, for a pass that cannot be replayed (the caller holds the lock)."""
     if settings.audit.errors:
         from figfolio import audit
@@ -326,18 +329,26 @@ def _full_pass(settings: Settings, options: Options, cache: Cache) -> Report:
     t0 = time.perf_counter()
     keys = {r.slug: cache.input_key(r, settings) for r in recipes}
     _timed("plan", time.perf_counter() - t0)
+    entries, todo = _lookup(recipes, cache, keys, options)
+    executor = _started_executor(settings, options, todo, pool)
+    try:
+        t0 = time.perf_counter()
+        blocking = screen_all(recipes, settings, cache, keys) if recipes else ""
+        _timed("screen", time.perf_counter() - t0)
+        if blocking:
+            raise DataScreenError(
+                "the data screen found likely identifiers or small counts that no recipe has "
+                "acknowledged:\n" + blocking,
+                hint="remove or coarsen those columns, or acknowledge each one in the "
+                     "recipe's [screen.acknowledged] with a reason; the screen is an aid, not "
+                     "a guarantee: your data governance decides what may be shared")
+    except BaseException:
+        if executor is not None:
+            executor.close()
+        raise
     t0 = time.perf_counter()
-    blocking = screen_all(recipes, settings, cache, keys) if recipes else ""
-    _timed("screen", time.perf_counter() - t0)
-    if blocking:
-        raise DataScreenError(
-            "the data screen found likely identifiers or small counts that no recipe has "
-            "acknowledged:\n" + blocking,
-            hint="remove or coarsen those columns, or acknowledge each one in the recipe's "
-                 "[screen.acknowledged] with a reason; the screen is an aid, not a "
-                 "guarantee: your data governance decides what may be shared")
-    t0 = time.perf_counter()
-    outcomes, ran, cached = _execute(settings, options, recipes, cache, keys)
+    outcomes, ran, cached = _execute(settings, options, recipes, cache, keys, entries, todo,
+                                     executor)
     _timed("execute", time.perf_counter() - t0)
     report = Report(outcomes=outcomes, problems=problems, ran=ran, cached=cached,
                     seconds=0.0)
@@ -354,37 +365,64 @@ def _full_pass(settings: Settings, options: Options, cache: Cache) -> Report:
     return report
 
 
-def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache: Cache,
-             keys: dict[str, str] | None = None) -> tuple[list[Outcome], int, int]:
-    if keys is None:
-        keys = {r.slug: cache.input_key(r, settings) for r in recipes}
+def _lookup(recipes: list[Recipe], cache: Cache, keys: dict[str, str], options: Options
+            ) -> tuple[dict[str, Entry], list[Recipe]]:
+    """(cache entries of the recipes that need no run, the recipes that must run)."""
     entries: dict[str, Entry] = {}
     todo: list[Recipe] = []
-    repeat = max(options.repeat, 1)
+    fresh = options.force or max(options.repeat, 1) > 1
     for recipe in recipes:
-        entry = None if (options.force or repeat > 1) else cache.lookup(recipe.slug,
-                                                                       keys[recipe.slug])
+        entry = None if fresh else cache.lookup(recipe.slug, keys[recipe.slug])
         if entry is None:
             todo.append(recipe)
         else:
             entries[recipe.slug] = entry
+    return entries, todo
+
+
+def _started_executor(settings: Settings, options: Options, todo: list[Recipe],
+                      pool: Executor | None = None) -> Executor | None:
+    """The executor for ``todo``, its workers already warming up; None when nothing runs.
+
+    Made before the data screen so that the workers import their stack (about a second)
+    while the builder screens, instead of after it. With a ``pool`` (kept by the caller),
+    that pool, lent: closing it leaves it running.
+    """
+    if not todo:
+        return None
+    if pool is not None and not options.executor:
+        executor: Executor = Lent(pool)
+    else:
+        executor = make_executor(settings, options.executor, options.scheduler,
+                                 jobs=options.jobs, preload=imported_modules(todo))
+    warm(executor, len(todo))
+    return executor
+
+
+def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache: Cache,
+             keys: dict[str, str], entries: dict[str, Entry], todo: list[Recipe],
+             executor: Executor | None) -> tuple[list[Outcome], int, int]:
+    """Run ``todo`` on ``executor`` (which this closes) and judge every recipe."""
+    repeat = max(options.repeat, 1)
     progress = Progress(len(recipes), options.command, quiet=options.quiet)
     for slug in entries:
         progress.step(slug, "cached")
     unstable: dict[str, dict[str, str]] = {}
     if todo:
         by_slug = {r.slug: r for r in todo}
-        jobs = [Job.from_recipe(r, settings, _expected_seconds(r, cache)) for r in todo]
-        # Round 1 is staged (digests, thumbnails, audit, data summaries) by the warm workers
-        # in parallel; later --repeat rounds are only compared, so they need no post step.
-        staged_jobs = [dataclasses.replace(j, post=PostSpec(by_slug[j.slug], settings))
-                       for j in jobs]
-        work = Path(tempfile.mkdtemp(prefix="work-", dir=_tmp_dir(cache)))
-        marks = _catalogue_marks(settings)
-        executor = make_executor(settings, options.executor, options.scheduler,
-                                 jobs=options.jobs, preload=imported_modules(todo))
         rounds: dict[str, list[RunResult]] = {r.slug: [] for r in todo}
         try:
+            jobs = [Job.from_recipe(r, settings, _expected_seconds(r, cache)) for r in todo]
+            # Round 1 is staged (digests, thumbnails, audit, data summaries) by the warm
+            # workers in parallel; later --repeat rounds are only compared, so they need no
+            # post step.
+            staged_jobs = [dataclasses.replace(j, post=PostSpec(by_slug[j.slug], settings))
+                           for j in jobs]
+            work = Path(tempfile.mkdtemp(prefix="work-", dir=_tmp_dir(cache)))
+            marks = _catalogue_marks(settings)
+            if executor is None:
+                executor = _started_executor(settings, options, todo)
+            assert executor is not None
             for k in range(repeat):
                 def collect(result: RunResult, k: int = k) -> None:
                     rounds[result.slug].append(result)
@@ -398,7 +436,8 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
                 executor.run(staged_jobs if k == 0 else jobs, work / f"round-{k + 1}",
                              collect)
         finally:
-            executor.close()
+            if executor is not None:
+                executor.close()
         if repeat > 1:
             for slug, results in rounds.items():
                 entry = entries.get(slug)
@@ -489,6 +528,22 @@ def _expected_seconds(recipe: Recipe, cache: Cache) -> float:
         except OSError:
             continue
     return 1.0 + size / 1e6
+
+
+def warm_pool(settings: Settings, jobs: int | None = None) -> Executor | None:
+    """A local executor to keep between passes (``serve``), preloading what every recipe of
+    the catalogue imports; None when the settings send work to another executor.
+
+    Why: a rebuild after one edit then pays only for that recipe's own run, not for starting
+    and warming the workers again (about a second).
+    """
+    if (settings.executor or "local") != "local":
+        return None
+    try:
+        recipes, _problems = discover(settings)
+    except FigfolioError:
+        recipes = []
+    return make_executor(settings, jobs=jobs, preload=imported_modules(recipes))
 
 
 def imported_modules(recipes: list[Recipe]) -> list[str]:

@@ -306,15 +306,24 @@ def cmd_serve(args: argparse.Namespace) -> int:
     from figfolio import build, serve
 
     settings = _settings(args)
+    pool = build.warm_pool(settings, args.jobs)  # warm workers kept between rebuilds
+    if pool is not None:
+        from figfolio.executor import warm
+        warm(pool, args.jobs or settings.job_count)  # ready before the first edit
 
     def rebuild() -> None:
         try:
-            report = build.run_pass(settings, build.Options(jobs=args.jobs, quiet=True))
+            report = build.run_pass(settings, build.Options(jobs=args.jobs, quiet=True),
+                                    pool=pool)
             _print_table(report, verbose=False)
         except FigfolioError as exc:
             print(exc.render(), file=sys.stderr)
 
-    serve.serve(settings, args.port, rebuild)
+    try:
+        serve.serve(settings, args.port, rebuild)
+    finally:
+        if pool is not None:
+            pool.close()
     return 0
 
 

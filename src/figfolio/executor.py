@@ -47,6 +47,33 @@ class Executor(Protocol):
     def close(self) -> None: ...
 
 
+def warm(executor: object, count: int) -> None:
+    """Let ``executor`` start ``count`` workers now, ahead of ``run`` (a no-op for executors
+    without a ``warm`` method). Why: the builder screens data while the workers import their
+    stack, instead of the two waiting on each other."""
+    start = getattr(executor, "warm", None)
+    if callable(start):
+        start(count)
+
+
+class Lent:
+    """Someone else's executor (the warm pool ``figfolio serve`` keeps between rebuilds):
+    jobs run on it, and ``close`` leaves it running for the next pass."""
+
+    def __init__(self, inner: Executor) -> None:
+        self.inner = inner
+
+    def warm(self, count: int) -> None:
+        warm(self.inner, count)
+
+    def run(self, jobs: list[Job], work_root: Path, on_result: Callable[[RunResult], None]
+            ) -> None:
+        self.inner.run(jobs, work_root, on_result)
+
+    def close(self) -> None:
+        """The owner closes the pool when it is done with it."""
+
+
 def worker_env(state_dir: Path | None = None) -> dict[str, str]:
     """Environment of a worker process: fixed hash seed and headless matplotlib.
 
@@ -108,26 +135,37 @@ class _Worker:
         self.child: int | None = None
         self.preload = preload
         self.state_dir = state_dir
+        self.ready = False
 
-    def start(self) -> None:
-        from figfolio.worker import recv_frame
-
+    def launch(self) -> None:
+        """Start the worker process without waiting for it to be warm (see ``start``)."""
         args = ["--preload", ",".join(self.preload)] if self.preload else []
+        self.ready = False
         self.proc = subprocess.Popen([sys.executable, "-m", "figfolio.worker", *args],
                                      stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                                      stderr=subprocess.DEVNULL,
                                      env=worker_env(self.state_dir), start_new_session=True)
-        assert self.proc.stdout is not None
+
+    def start(self) -> None:
+        """Launch the worker unless it is running, and wait for its 'ready'."""
+        from figfolio.worker import recv_frame
+
+        if self.proc is None or self.proc.poll() is not None:
+            self.launch()
+        if getattr(self, "ready", False):
+            return
+        assert self.proc is not None and self.proc.stdout is not None
         kind, info = recv_frame(self.proc.stdout.fileno(), time.monotonic() + START_SECONDS)
         if kind != "ready":
             raise ExecutorError(f"a figfolio worker answered {kind!r} instead of 'ready'")
+        self.ready = True
         self.warm_seconds = float(info.get("warm_seconds", 0.0))
 
     def run(self, job: Job, work: Path) -> RunResult:
         """Send one job and wait for its result; a dead or hung worker is replaced."""
         from figfolio.worker import ProtocolEOF, recv_frame, send_frame
 
-        if self.proc is None or self.proc.poll() is not None:
+        if self.proc is None or self.proc.poll() is not None or not self.ready:
             self.start()
         assert self.proc is not None and self.proc.stdin and self.proc.stdout
         deadline = time.monotonic() + job.timeout + GRACE_SECONDS
@@ -165,6 +203,7 @@ class _Worker:
         if self.proc is None:
             return None
         proc, self.proc = self.proc, None
+        self.ready = False
         for stream in (proc.stdin, proc.stdout):
             try:
                 if stream:
@@ -196,6 +235,23 @@ class LocalExecutor:
         self.preload = tuple(preload)
         self.state_dir = state_dir
         self._workers: list[_Worker] = []
+
+    def warm(self, count: int) -> None:
+        """Start up to ``count`` workers now; ``run`` waits for their 'ready' when it needs them.
+
+        Only the processes are started here (a few milliseconds); they import the rendering
+        stack while the caller does other work.
+        """
+        if self.spawn:
+            return
+        while len(self._workers) < min(self.jobs, max(count, 0)):
+            self._workers.append(_Worker(self.preload, self.state_dir))
+        for worker in self._workers[:count]:
+            if worker.proc is None:
+                try:
+                    worker.launch()
+                except OSError:  # run() starts it again and reports the failure per job
+                    worker.proc = None
 
     def run(self, jobs: list[Job], work_root: Path, on_result: Callable[[RunResult], None]
             ) -> None:

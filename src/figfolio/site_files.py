@@ -73,12 +73,14 @@ def write_zip(folder: Path, files: list[str], slug: str, out: Path) -> None:
     """The recipe as one reproducible zip: ``<slug>/...``, sorted, fixed times and modes.
 
     Why fixed: the same recipe gives the same bytes on every build, so a site diff or a
-    checksum shows real changes only.
+    checksum shows real changes only. Deflate level 6 (zlib's default): on the demo and
+    benchmark data level 9 took twice as long for files 0.3% smaller, and the zips are
+    written on the build's critical path.
     """
     entries = sorted({"/".join(safe_parts(f, where=folder)) for f in files})
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = out.with_name(out.name + ".tmp")
-    with zipfile.ZipFile(tmp, "w", compression=zipfile.ZIP_DEFLATED, compresslevel=9) as zf:
+    with zipfile.ZipFile(tmp, "w", compression=zipfile.ZIP_DEFLATED, compresslevel=6) as zf:
         for rel in entries:
             source = folder / rel
             try:
