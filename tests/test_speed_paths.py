@@ -445,3 +445,39 @@ def test_worker_rehearsal_leaves_no_trace(tmp_path: Path) -> None:
     assert got["figures"] == [] and got["rc_changed"] == []
     assert got["cwd_same"] and got["env_same"] and got["left"] == []
     assert got["versions_ok"] and got["versions"] >= 3   # numpy, pandas, matplotlib at least
+
+
+def test_worker_freezes_its_heap_and_children_collect_garbage(tmp_path: Path) -> None:
+    """Before forking, the warm worker moves its objects to the collector's permanent
+    generation (gc.freeze, as Python's documentation advises for pre-fork servers) and turns
+    collection back on, so a recipe's own reference cycles are still freed."""
+    folder = tmp_path / "cat" / "recipes" / "cycles"
+    (tmp_path / "cat" / "figfolio.toml").parent.mkdir(parents=True, exist_ok=True)
+    (tmp_path / "cat" / "figfolio.toml").write_text('title = "gc"\nformats = ["png"]\n')
+    add(tmp_path / "cat", "cycles", '''
+import gc
+import matplotlib.pyplot as plt
+print("frozen", gc.get_freeze_count(), "enabled", gc.isenabled())
+class Node:
+    pass
+gc.disable()  # so that the collection below, not an automatic one, frees the cycles
+for _ in range(1000):
+    a, b = Node(), Node()
+    a.other, b.other = b, a
+print("collected", gc.collect())
+gc.enable()
+fig, ax = plt.subplots(figsize=(3, 2))
+ax.plot([1, 2, 3], color="#0072B2")
+ax.set_xlabel("x")
+ax.set_ylabel("y")
+plt.show()
+''', rows=3)
+    settings = load_settings(tmp_path / "cat")
+    recipe = load_recipe(folder, settings)
+    got: list[RunResult] = []
+    with LocalExecutor(jobs=1) as executor:
+        executor.run([Job.from_recipe(recipe, settings)], tmp_path / "work", got.append)
+    out = got[0].stdout_tail
+    frozen = int(out.split("frozen ")[1].split()[0])
+    assert got[0].status == "ok" and frozen > 100_000 and "enabled True" in out
+    assert int(out.split("collected ")[1].split()[0]) >= 2000   # the recipe's cycles

@@ -206,6 +206,24 @@ def _render_once() -> None:
     plt.close("all")
 
 
+def freeze_heap() -> None:
+    """Move every object the warm-up made into the garbage collector's permanent generation.
+
+    Why: with numpy, pandas, matplotlib, scipy and statsmodels loaded the parent holds over a
+    million tracked objects. A full collection in a forked child walked all of them and wrote
+    to each one's header, so the child both spent the time and copied most of the parent's
+    heap page by page (copy-on-write). Frozen objects are skipped (the ``gc.freeze`` recipe
+    for pre-fork servers in Python's documentation). Measured: 60 benchmark recipes forked
+    one after another from one warm worker took 31.8 s without and 27.9 s with it (means of
+    three alternating runs). The parent never frees them anyway: it lives until the build ends.
+    """
+    import gc
+
+    gc.collect()
+    gc.freeze()
+    gc.enable()  # the children collect their own garbage as any Python process does
+
+
 def run_forked(job: Any, work: Path, private_fds: list[int], on_start: Any) -> dict[str, Any]:
     """Fork a child for ``job``, supervise it, and return the RunResult as a dict."""
     from figfolio.containment import finish, supervise
@@ -260,7 +278,10 @@ def serve(modules: list[str] | None = None) -> int:
     """The fork-server loop: read a job, fork, answer, until stdin closes."""
     proto_out = os.dup(1)
     os.dup2(2, 1)  # stray prints from imports must not corrupt the protocol
-    warm = warm_up(modules)
+    import gc
+    gc.disable()  # imports make many objects and few cycles: one collection at the end
+    warm = warm_up(modules)   # (1.76 s instead of 2.0 s with scipy and statsmodels preloaded)
+    freeze_heap()
     send_frame(proto_out, ("ready", {"pid": os.getpid(), "warm_seconds": warm}))
     while True:
         try:
