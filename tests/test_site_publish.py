@@ -289,3 +289,72 @@ def test_render_500_recipe_pages_timing(tmp_path, capsys):
         print(f"\n500 recipe pages: full publish {full:.2f} s, incremental {incremental:.2f} s")
     assert len(list((out / "r").iterdir())) == 500
     assert full < 60 and incremental < full
+
+
+def _tree(site: Path) -> dict[str, bytes]:
+    return {p.relative_to(site).as_posix(): p.read_bytes()
+            for p in sorted(site.rglob("*")) if p.is_file()}
+
+
+HELPER_CHECK = r"""
+import json, os, sys
+from pathlib import Path
+sys.path.insert(0, sys.argv[2])
+import site_view
+from figfolio import site as site_module
+from figfolio.site import publish
+from figfolio.site_files import fork_helper
+tmp = Path(sys.argv[1])
+view, settings = site_view.make_bulk_view(tmp, 40)
+forked = []
+def counting(work):
+    pid = fork_helper(work)
+    forked.append(pid)
+    return pid
+site_module.fork_helper = counting
+publish(view, settings, tmp / "two")
+site_module.fork_helper = lambda work: None
+publish(view, settings, tmp / "one")
+def dying(work):
+    pid = os.fork()
+    if pid == 0:
+        os._exit(3)          # dies before rendering anything
+    return pid
+site_module.fork_helper = dying
+publish(view, settings, tmp / "rescued")
+print(json.dumps({"forked": forked}))
+"""
+
+
+def test_helper_process_renders_the_same_site(tmp_path):
+    """Many pages are rendered by this process and a forked helper (every other page); the
+    site must be byte for byte what one process writes, and a helper that dies without doing
+    its work is made good by the parent. Run in a fresh interpreter: the helper is only
+    forked from a process with no other thread, and pytest's may have some."""
+    import json
+    import subprocess
+    fixtures = str(Path(__file__).parent / "fixtures")
+    run = subprocess.run([sys.executable, "-c", HELPER_CHECK, str(tmp_path), fixtures],
+                         capture_output=True, text=True, timeout=300)
+    assert run.returncode == 0, run.stderr[-3000:]
+    forked = json.loads(run.stdout.strip().splitlines()[-1])["forked"]
+    assert forked and forked[0] is not None               # the helper really ran
+    one = _tree(tmp_path / "one")
+    assert len([k for k in one if k.endswith("index.html")]) == 41
+    assert _tree(tmp_path / "two") == one
+    assert _tree(tmp_path / "rescued") == one
+
+
+def test_no_helper_while_other_threads_run():
+    """A fork copies no thread but their locks: with a second thread alive (serve's web
+    server) the pages are rendered in this process only."""
+    import threading
+    from figfolio.site_files import fork_helper
+    stop = threading.Event()
+    thread = threading.Thread(target=stop.wait, daemon=True)
+    thread.start()
+    try:
+        assert fork_helper(lambda: None) is None
+    finally:
+        stop.set()
+        thread.join()

@@ -26,7 +26,8 @@ import figfolio
 from figfolio import markup
 from figfolio.recipe import SLUG
 from figfolio.settings import Settings
-from figfolio.site_files import (SiteError, copy_file, link_tree, swap_in, temp_site_folder,
+from figfolio.site_files import (SiteError, copy_file, fork_helper, helper_succeeded,
+                                 link_tree, stop_helper, swap_in, temp_site_folder,
                                  write_text)
 from figfolio.site_pages import card, place_recipe, recipe_context, related_map, report_rows
 from figfolio.site_render import make_env, render, theme_folders
@@ -169,16 +170,42 @@ def _reusable(out: Path, signatures: dict[str, str], entries: list[dict[str, Any
             and (out / "r" / e["slug"] / "index.html").is_file()}
 
 
+# Below this many pages to render, a second process costs more than it saves.
+HELPER_PAGES = 24
+
+
 def _write_recipes(env: Environment, entries: list[dict[str, Any]], common: dict[str, Any],
                    tmp: Path, old_site: Path, reuse: set[str]) -> None:
+    """Every recipe page: unchanged ones hard-linked, the rest rendered (on two cores when
+    there are many: a forked helper renders every other page)."""
     neighbours = _neighbours(entries)
+    fresh = []
+    for entry in entries:
+        if entry["slug"] in reuse:
+            link_tree(old_site / "r" / entry["slug"], tmp / "r" / entry["slug"])
+        else:
+            fresh.append(entry)
+    share = fresh[1::2] if len(fresh) >= HELPER_PAGES else []
+    helper = fork_helper(lambda: _render_pages(env, share, common, tmp, neighbours)) \
+        if share else None
+    mine = fresh[0::2] if helper is not None else fresh
+    try:
+        _render_pages(env, mine, common, tmp, neighbours)
+    except BaseException:
+        stop_helper(helper)
+        raise
+    if helper is not None and not helper_succeeded(helper):
+        for entry in share:  # render the helper's pages here, reporting any error in full
+            shutil.rmtree(tmp / "r" / entry["slug"], ignore_errors=True)
+        _render_pages(env, share, common, tmp, neighbours)
+
+
+def _render_pages(env: Environment, entries: list[dict[str, Any]], common: dict[str, Any],
+                  tmp: Path, neighbours: dict[str, dict[str, Any]]) -> None:
     for entry in entries:
         slug = entry["slug"]
         folder = tmp / "r" / slug
-        if slug in reuse:
-            link_tree(old_site / "r" / slug, folder)
-            continue
-        folder.mkdir(parents=True)
+        folder.mkdir(parents=True, exist_ok=True)
         place_recipe(entry, folder)
         near = neighbours[slug]
         context = dict(common, root="../../", page="recipe",

@@ -8,10 +8,12 @@ from __future__ import annotations
 
 import os
 import shutil
+import signal
 import stat
 import uuid
 import zipfile
 from pathlib import Path, PurePosixPath
+from typing import Callable
 from urllib.parse import quote
 
 from figfolio.errors import SiteError
@@ -61,6 +63,54 @@ def link_tree(src: Path, dst: Path) -> None:
         except OSError:
             shutil.copy2(s, d)
     shutil.copytree(src, dst, copy_function=link, dirs_exist_ok=True)
+
+
+def fork_helper(work: Callable[[], None]) -> int | None:
+    """Run ``work`` in a forked copy of this process; its pid, or None where that is unwise.
+
+    Why: rendering pages and writing zips is CPU work in one thread, and at the end of a
+    build the other cores are idle. Not forked: without fork, on one core, or when other
+    threads run (``figfolio serve``'s web server): a fork copies no thread but their locks.
+    The helper writes only files of its own pages and exits at once (``os._exit``).
+    """
+    import threading
+
+    if not hasattr(os, "fork") or (os.cpu_count() or 1) < 2 or threading.active_count() > 1:
+        return None
+    try:
+        pid = os.fork()
+    except OSError:
+        return None
+    if pid == 0:
+        code = 1
+        try:
+            work()
+            code = 0
+        except BaseException:  # noqa: BLE001 - the parent renders these pages again itself
+            pass
+        finally:
+            os._exit(code)
+    return pid
+
+
+def helper_succeeded(pid: int) -> bool:
+    """Wait for the helper; True when it finished all its work."""
+    _, status = os.waitpid(pid, 0)
+    return os.WIFEXITED(status) and os.WEXITSTATUS(status) == 0
+
+
+def stop_helper(pid: int | None) -> None:
+    """Kill and reap a helper whose work is no longer wanted (the parent failed)."""
+    if pid is None:
+        return
+    try:
+        os.kill(pid, signal.SIGKILL)
+    except OSError:
+        pass
+    try:
+        os.waitpid(pid, 0)
+    except ChildProcessError:
+        pass
 
 
 def write_text(path: Path, text: str) -> None:
