@@ -44,7 +44,6 @@ def collect_facts(fig: Any) -> dict[str, Any]:
                              "canvas": {}, "colours": [], "colormaps": [], "texts": [],
                              "axes": []}
     problems: list[str] = []
-    _TICK_MEMO.clear()
     try:
         for step in (_figure_size, _colours, _texts, _axes):
             try:

@@ -420,9 +420,7 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
                            for j in jobs]
             work = Path(tempfile.mkdtemp(prefix="work-", dir=_tmp_dir(cache)))
             marks = _catalogue_marks(settings)
-            if executor is None:
-                executor = _started_executor(settings, options, todo)
-            assert executor is not None
+            assert executor is not None, "_started_executor makes one whenever todo is not empty"
             for k in range(repeat):
                 def collect(result: RunResult, k: int = k) -> None:
                     rounds[result.slug].append(result)

@@ -152,7 +152,7 @@ class _Worker:
 
         if self.proc is None or self.proc.poll() is not None:
             self.launch()
-        if getattr(self, "ready", False):
+        if self.ready:
             return
         assert self.proc is not None and self.proc.stdout is not None
         kind, info = recv_frame(self.proc.stdout.fileno(), time.monotonic() + START_SECONDS)
@@ -236,6 +236,12 @@ class LocalExecutor:
         self.state_dir = state_dir
         self._workers: list[_Worker] = []
 
+    def _ensure_workers(self, count: int) -> list[_Worker]:
+        """The first ``count`` workers, made (not started) where missing."""
+        while len(self._workers) < count:
+            self._workers.append(_Worker(self.preload, self.state_dir))
+        return self._workers[:count]
+
     def warm(self, count: int) -> None:
         """Start up to ``count`` workers now; ``run`` waits for their 'ready' when it needs them.
 
@@ -244,9 +250,7 @@ class LocalExecutor:
         """
         if self.spawn:
             return
-        while len(self._workers) < min(self.jobs, max(count, 0)):
-            self._workers.append(_Worker(self.preload, self.state_dir))
-        for worker in self._workers[:count]:
+        for worker in self._ensure_workers(min(self.jobs, max(count, 0))):
             if worker.proc is None:
                 try:
                     worker.launch()
@@ -263,8 +267,7 @@ class LocalExecutor:
             todo.put((job, work))
         done: queue.Queue[RunResult] = queue.Queue()
         count = min(self.jobs, len(jobs))
-        while len(self._workers) < count:
-            self._workers.append(_Worker(self.preload, self.state_dir))
+        self._ensure_workers(count)
         threads = [threading.Thread(target=self._drain, args=(todo, done, self._workers[i]),
                                     name=f"figfolio-worker-{i}", daemon=True)
                    for i in range(count)]

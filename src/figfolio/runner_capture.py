@@ -317,16 +317,7 @@ def package_versions(names: set[str]) -> dict[str, str]:
 def remember_loaded_versions() -> None:
     """In the warm worker, before any fork: note the versions of the distributions whose
     modules are loaded now. Modules imported later (in a child) are looked up on disk."""
-    from importlib import metadata
-
-    owners = distribution_owners()
-    for name in top_level(set(sys.modules)) - {"figfolio"}:
-        for dist in owners.get(name, []):
-            if dist not in _LOADED_VERSIONS:
-                try:
-                    _LOADED_VERSIONS[dist] = metadata.version(dist)
-                except metadata.PackageNotFoundError:
-                    continue
+    _LOADED_VERSIONS.update(package_versions(top_level(set(sys.modules))))
 
 
 def top_level(modules: set[str] | list[str]) -> set[str]:
