@@ -481,3 +481,56 @@ plt.show()
     frozen = int(out.split("frozen ")[1].split()[0])
     assert got[0].status == "ok" and frozen > 100_000 and "enabled True" in out
     assert int(out.split("collected ")[1].split()[0]) >= 2000   # the recipe's cycles
+
+
+def test_builder_describes_data_once_after_the_screen(catalogue: Path) -> None:
+    """The data summary a cold build stores is the one made right after the screen; each
+    recipe's columns are classified once (data.table_columns), and the summary's numbers
+    agree with numpy's on the same column (reference: numpy.percentile / mean / std)."""
+    import numpy as np
+
+    from figfolio import data
+
+    settings = load_settings(catalogue)
+    recipes, _ = discover(settings)
+    classified: list[str] = []
+    real = data._build_columns
+
+    def counting(table, recipe, path):  # type: ignore[no-untyped-def]
+        classified.append(recipe.slug if recipe else "")
+        return real(table, recipe, path)
+
+    data._build_columns = counting
+    try:
+        described: dict[str, object] = {"line-1": None}
+        assert build.screen_all(recipes, settings, described=described) == ""
+    finally:
+        data._build_columns = real
+    assert sorted(classified) == ["line-0", "line-1", "line-2"]  # the screen, once each
+    summary = described["line-1"]
+    assert summary == poststep.describe_data(next(r for r in recipes if r.slug == "line-1"),
+                                             settings)
+    rate = next(c for c in summary[0]["description"]["columns"] if c["name"] == "rate")
+    values = np.array([(w * 7) % 11 + 0.5 for w in range(7)])
+    assert rate["mean"] == pytest.approx(values.mean(), rel=1e-5)
+    assert rate["sd"] == pytest.approx(values.std(ddof=1), rel=1e-5)
+    assert rate["median"] == pytest.approx(np.percentile(values, 50), rel=1e-5)
+
+    run_pass(settings, Options(quiet=True))
+    from figfolio.cache import Cache
+    cache = Cache(settings.cache_path)
+    for recipe in recipes:
+        entry = cache.lookup(recipe.slug, cache.input_key(recipe, settings))
+        assert entry is not None
+        assert entry.record["data"] == poststep.describe_data(recipe, settings)
+
+
+def test_post_step_keeps_a_description_it_was_given(catalogue: Path, tmp_path: Path) -> None:
+    settings = load_settings(catalogue)
+    recipe = load_recipe(catalogue / "recipes" / "line-0", settings)
+    given = [{"name": "data/values.csv", "size": 1, "description": None}]
+    record = poststep.stage(RunResult(slug="line-0"), recipe, settings, tmp_path / "stage",
+                            given)
+    assert record["data"] == given
+    fresh = poststep.stage(RunResult(slug="line-0"), recipe, settings, tmp_path / "again")
+    assert fresh["data"] == poststep.describe_data(recipe, settings) != given

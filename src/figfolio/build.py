@@ -136,13 +136,19 @@ def _screen_key(input_key: str, settings: Settings) -> str:
 
 
 def screen_all(recipes: list[Recipe], settings: Settings, cache: Cache | None = None,
-               keys: dict[str, str] | None = None) -> str:
+               keys: dict[str, str] | None = None,
+               described: dict[str, list[dict[str, Any]] | None] | None = None) -> str:
     """The data-screen report of every recipe with a finding that must stop publishing.
 
     With a cache and input keys, a recipe that passed the screen with exactly these files and
     screen settings is not screened again (``build/cache/screen-passed.json``): reading every
     data file of a thousand recipes would dominate a build where nothing changed. A recipe
     with a blocking finding is never remembered, so its report is shown on every build.
+
+    ``described``: for each of its slugs that is screened here, its value becomes the recipe's
+    data description (``poststep.describe_data``), made right after the screen while the
+    classified columns are still at hand (``data.table_columns``), so the post step need not
+    classify every cell again. Slugs not screened keep None; their post step describes them.
     """
     known: dict[str, str] = {}
     wanted: dict[str, str] = {}
@@ -158,6 +164,8 @@ def screen_all(recipes: list[Recipe], settings: Settings, cache: Cache | None = 
     passed: dict[str, str] = {}
     for recipe in todo:
         findings = screen.screen_recipe(recipe, settings)
+        if described is not None and recipe.slug in described:
+            described[recipe.slug] = _describe(recipe, settings)
         if any(f.blocking for f in findings):
             rel = recipe.toml_path.relative_to(settings.root)
             blocks.append(f"{recipe.slug}:\n" + screen.format_findings(findings, rel))
@@ -169,6 +177,19 @@ def screen_all(recipes: list[Recipe], settings: Settings, cache: Cache | None = 
     return "\n".join(blocks)
 
 
+def _describe(recipe: Recipe, settings: Settings) -> list[dict[str, Any]] | None:
+    """The recipe's data description, or None (its post step tries again and reports)."""
+    from figfolio import poststep
+
+    t0 = time.perf_counter()
+    try:
+        return poststep.describe_data(recipe, settings)
+    except OSError:  # a data file vanished since discovery
+        return None
+    finally:
+        _timed("describe", time.perf_counter() - t0)
+
+
 def _read_json(path: Path) -> dict[str, Any]:
     try:
         value = json.loads(path.read_text(encoding="utf-8"))
@@ -177,12 +198,12 @@ def _read_json(path: Path) -> dict[str, Any]:
     return value if isinstance(value, dict) else {}
 
 
-def _stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path
-           ) -> dict[str, Any]:
+def _stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path,
+           described: list[dict[str, Any]] | None = None) -> dict[str, Any]:
     """Stage a run's outputs here, in the builder (spawn mode, Dask, or a failed post fork)."""
     from figfolio import poststep
 
-    return poststep.stage(result, recipe, settings, staging)
+    return poststep.stage(result, recipe, settings, staging, described)
 
 
 def _add_timings(record: dict[str, Any]) -> None:
@@ -333,7 +354,8 @@ def _full_pass(settings: Settings, options: Options, cache: Cache,
     executor = _started_executor(settings, options, todo, pool)
     try:
         t0 = time.perf_counter()
-        blocking = screen_all(recipes, settings, cache, keys) if recipes else ""
+        described: dict[str, list[dict[str, Any]] | None] = {r.slug: None for r in todo}
+        blocking = screen_all(recipes, settings, cache, keys, described) if recipes else ""
         _timed("screen", time.perf_counter() - t0)
         if blocking:
             raise DataScreenError(
@@ -348,7 +370,7 @@ def _full_pass(settings: Settings, options: Options, cache: Cache,
         raise
     t0 = time.perf_counter()
     outcomes, ran, cached = _execute(settings, options, recipes, cache, keys, entries, todo,
-                                     executor)
+                                     executor, described)
     _timed("execute", time.perf_counter() - t0)
     report = Report(outcomes=outcomes, problems=problems, ran=ran, cached=cached,
                     seconds=0.0)
@@ -401,8 +423,13 @@ def _started_executor(settings: Settings, options: Options, todo: list[Recipe],
 
 def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache: Cache,
              keys: dict[str, str], entries: dict[str, Entry], todo: list[Recipe],
-             executor: Executor | None) -> tuple[list[Outcome], int, int]:
-    """Run ``todo`` on ``executor`` (which this closes) and judge every recipe."""
+             executor: Executor | None,
+             described: dict[str, list[dict[str, Any]] | None] | None = None
+             ) -> tuple[list[Outcome], int, int]:
+    """Run ``todo`` on ``executor`` (which this closes) and judge every recipe.
+
+    ``described``: data descriptions the builder already made (``screen_all``), by slug.
+    """
     repeat = max(options.repeat, 1)
     progress = Progress(len(recipes), options.command, quiet=options.quiet)
     for slug in entries:
@@ -416,8 +443,8 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
             # Round 1 is staged (digests, thumbnails, audit, data summaries) by the warm
             # workers in parallel; later --repeat rounds are only compared, so they need no
             # post step.
-            staged_jobs = [dataclasses.replace(j, post=PostSpec(by_slug[j.slug], settings))
-                           for j in jobs]
+            staged_jobs = [dataclasses.replace(j, post=PostSpec(
+                by_slug[j.slug], settings, (described or {}).get(j.slug))) for j in jobs]
             work = Path(tempfile.mkdtemp(prefix="work-", dir=_tmp_dir(cache)))
             marks = _catalogue_marks(settings)
             assert executor is not None, "_started_executor makes one whenever todo is not empty"
@@ -426,7 +453,8 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
                     rounds[result.slug].append(result)
                     if k == 0:
                         entries[result.slug] = _store(result, by_slug[result.slug], settings,
-                                                      cache, keys[result.slug])
+                                                      cache, keys[result.slug],
+                                                      (described or {}).get(result.slug))
                         if repeat == 1:
                             progress.step(result.slug, result.status)
                     elif k == repeat - 1:
@@ -572,8 +600,8 @@ def imported_modules(recipes: list[Recipe]) -> list[str]:
     return sorted(m for m in found if m.partition(".")[0] in PRELOADABLE)[:200]
 
 
-def _store(result: RunResult, recipe: Recipe, settings: Settings, cache: Cache, key: str
-           ) -> Entry:
+def _store(result: RunResult, recipe: Recipe, settings: Settings, cache: Cache, key: str,
+           described: list[dict[str, Any]] | None = None) -> Entry:
     """Put one finished run into the cache, staged by its worker or, failing that, here."""
     t0 = time.perf_counter()
     if result.staged:
@@ -584,7 +612,7 @@ def _store(result: RunResult, recipe: Recipe, settings: Settings, cache: Cache, 
             run.get("reason", result.reason)
     else:
         staging = Path(tempfile.mkdtemp(prefix="stage-", dir=_tmp_dir(cache)))
-        record = _stage(result, recipe, settings, staging)
+        record = _stage(result, recipe, settings, staging, described)
         _timed("staged_in_builder", 1.0)
     _add_timings(record)
     entry = cache.store(result.slug, key, staging, record)

@@ -57,8 +57,30 @@ def load_table(path: Path, sample_rows: int) -> Table:
     return _cached_table(str(path), stat.st_size, stat.st_mtime_ns, sample_rows)
 
 
+# The last few tables' columns. Why: the data screen and the recipe page's data summary
+# classify the same cells (in a cold build of the benchmark catalogue, about 1 s each);
+# the builder describes a recipe's data right after screening it and gets them from here.
+_COLUMNS: dict[tuple[int, int, str], tuple[Table, Recipe | None, list[ColumnData]]] = {}
+_COLUMNS_KEPT = 4
+
+
 def table_columns(table: Table, recipe: Recipe | None, path: Path) -> list[ColumnData]:
-    """Typed columns of a table, with the recipe's missing codes and value labels applied."""
+    """Typed columns of a table, with the recipe's missing codes and value labels applied.
+
+    The same (table, recipe, path) gives the same list: callers must not modify it.
+    """
+    key = (id(table), id(recipe), str(path))
+    kept = _COLUMNS.get(key)
+    if kept is not None and kept[0] is table and kept[1] is recipe:
+        return kept[2]
+    columns = _build_columns(table, recipe, path)
+    while len(_COLUMNS) >= _COLUMNS_KEPT:
+        _COLUMNS.pop(next(iter(_COLUMNS)))
+    _COLUMNS[key] = (table, recipe, columns)
+    return columns
+
+
+def _build_columns(table: Table, recipe: Recipe | None, path: Path) -> list[ColumnData]:
     unique = _unique_names(table.header)
     columns = []
     for index, name in enumerate(unique):

@@ -33,13 +33,28 @@ POST_SECONDS = 300.0  # digests, thumbnails and data summaries of one recipe; ge
 
 @dataclass(frozen=True)
 class PostSpec:
-    """What the post step needs besides the run result: the recipe and the catalogue settings.
+    """What the post step needs besides the run result: the recipe and the catalogue settings,
+    and the recipe's data description when the builder already made it (``describe_data``,
+    right after the data screen read the same files); None: the post step makes it.
 
-    Both are plain frozen dataclasses, so the spec travels in the job frame to the worker.
+    All plain data, so the spec travels in the job frame to the worker.
     """
 
     recipe: Recipe
     settings: Settings
+    data: list[dict[str, Any]] | None = None
+
+
+def describe_data(recipe: Recipe, settings: Settings) -> list[dict[str, Any]]:
+    """Name, size and (when the data is published) summary of each of the recipe's data files."""
+    from figfolio import data
+
+    described = []
+    for path in recipe.data:
+        desc = data.describe_file(path, recipe, settings) if recipe.publishes_data else None
+        described.append({"name": recipe.rel(path), "size": path.stat().st_size,
+                          "description": desc})
+    return described
 
 
 def _place(result: RunResult, staging: Path) -> list[Output]:
@@ -84,14 +99,15 @@ def _image_facts(outputs: list[Output], staging: Path, result: RunResult, max_pi
     return images
 
 
-def stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path
-          ) -> dict[str, Any]:
+def stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path,
+          described: list[dict[str, Any]] | None = None) -> dict[str, Any]:
     """Place a run's outputs in ``staging`` and return the cache record describing them.
 
     ``result`` is updated in place: its outputs point into ``staging``, and it becomes broken
     when an output image cannot be read. The record's ``timings`` say where the time went.
+    ``described``: the recipe's data description if already made (``describe_data``).
     """
-    from figfolio import audit, data, fingerprint
+    from figfolio import audit, fingerprint
 
     staging.mkdir(parents=True, exist_ok=True)
     t0 = time.perf_counter()
@@ -109,11 +125,8 @@ def stage(result: RunResult, recipe: Recipe, settings: Settings, staging: Path
     findings["images"] = {fig: {kind: Path(p).relative_to(staging).as_posix()
                                 for kind, p in kinds.items()}
                           for fig, kinds in findings.get("images", {}).items()}
-    described = []
-    for path in recipe.data:
-        desc = data.describe_file(path, recipe, settings) if recipe.publishes_data else None
-        described.append({"name": recipe.rel(path), "size": path.stat().st_size,
-                          "description": desc})
+    if described is None:
+        described = describe_data(recipe, settings)
     run = result.to_dict()
     for out in run["outputs"]:
         out["path"] = out["name"]
@@ -197,7 +210,8 @@ def _child(result: dict[str, Any], spec: PostSpec, staging: Path, record_path: P
             signal.signal(sig, signal.SIG_DFL)
         for fd in close:
             os.close(fd)
-        record = stage(RunResult.from_dict(result), spec.recipe, spec.settings, staging)
+        record = stage(RunResult.from_dict(result), spec.recipe, spec.settings, staging,
+                       spec.data)
         from figfolio.runner_capture import plain
         tmp = record_path.with_name(f".tmp-{record_path.name}")
         tmp.write_text(json.dumps(record, default=plain), encoding="utf-8")
