@@ -222,3 +222,67 @@ def test_fork_server_is_faster_than_spawning(tmp_path: Path, capsys: pytest.Capt
         print(f"\nper trivial recipe: fork server {timings['fork server']:.3f} s, "
               f"spawn {timings['spawn']:.3f} s")
     assert timings["fork server"] < timings["spawn"]
+
+
+def parent_of(pid: int) -> int:
+    """The PPid line of /proc/<pid>/status (proc(5))."""
+    for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+        if line.startswith("PPid:"):
+            return int(line.split()[1])
+    raise AssertionError(f"no PPid for {pid}")
+
+
+def test_warm_workers_share_one_warm_up_and_stay_isolated(tmp_path: Path) -> None:
+    """warm(2) starts one process; the second worker is a twin it forked once warm."""
+    import subprocess
+
+    with LocalExecutor(jobs=2) as executor:
+        executor.warm(2)
+        first, second = executor._workers
+        first.start()
+        second.start()
+        assert isinstance(first.proc, subprocess.Popen)
+        assert second.proc is not None and second.proc.pid != first.proc.pid
+        assert parent_of(second.proc.pid) == first.proc.pid
+        assert second.warm_seconds == first.warm_seconds  # one warm-up, inherited
+        alone = first.run(job_for(HOSTILE / "innocent"), tmp_path / "alone")
+        polluted = second.run(job_for(HOSTILE / "polluter"), tmp_path / "polluter")
+        after = second.run(job_for(HOSTILE / "innocent"), tmp_path / "after")
+        assert alone.status == polluted.status == after.status == "ok", after.traceback
+        assert pixel_digest(png(after)) == pixel_digest(png(alone))
+        assert pixel_digest(png(polluted)) != pixel_digest(png(alone))
+        pids = [first.proc.pid, second.proc.pid]
+    deadline = time.monotonic() + 10
+    while not all(process_gone(p) for p in pids) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert all(process_gone(p) for p in pids)
+
+
+def test_a_dead_twin_is_replaced_by_a_worker_of_its_own(tmp_path: Path) -> None:
+    import subprocess
+
+    with LocalExecutor(jobs=2) as executor:
+        executor.warm(2)
+        twin = executor._workers[1]
+        killed = twin.run(job_for(HOSTILE / "kills-worker"), tmp_path / "killed")
+        assert killed.status == "broken"
+        assert killed.reason.startswith("the figfolio worker process died while running")
+        good = twin.run(job_for(HOSTILE / "good"), tmp_path / "good")
+        assert good.status == "ok"
+        assert isinstance(twin.proc, subprocess.Popen)
+
+
+def test_a_twin_that_never_comes_up_is_started_on_its_own(tmp_path: Path) -> None:
+    """The forking worker dies before it is warm: its twin's pipe closes, and the builder
+    starts that worker the ordinary way instead of failing a recipe."""
+    import signal
+    import subprocess
+
+    with LocalExecutor(jobs=2) as executor:
+        executor.warm(2)
+        first, twin = executor._workers
+        assert first.proc is not None
+        os.killpg(first.proc.pid, signal.SIGKILL)
+        got = twin.run(job_for(HOSTILE / "good"), tmp_path / "good")
+        assert got.status == "ok", got.reason
+        assert isinstance(twin.proc, subprocess.Popen)

@@ -127,39 +127,116 @@ def run_isolated(job: Job, work: Path) -> RunResult:
     return finish(job, work, outcome, before)
 
 
+class _Twin:
+    """The builder's handle on a twin server (worker.serve_twin): the little of
+    ``subprocess.Popen`` that ``_Worker`` uses, for a process that is not the builder's child
+    (its parent, the worker that forked it, reaps it).
+
+    Its pid arrives with its 'ready' frame; until then it counts as running (if it never
+    comes up, reading its pipe ends in EOF). Its exit status is unknown to the builder.
+    """
+
+    def __init__(self, to_twin: int, from_twin: int) -> None:
+        self.stdin = os.fdopen(to_twin, "wb", buffering=0)
+        self.stdout = os.fdopen(from_twin, "rb", buffering=0)
+        self.pid: int | None = None
+        self.returncode: int | None = None
+
+    def _gone(self, seconds: float) -> bool:
+        """True once the twin has ended, waiting up to ``seconds``."""
+        if self.pid is None:
+            return False
+        try:
+            handle = os.pidfd_open(self.pid)  # type: ignore[attr-defined]
+        except ProcessLookupError:
+            return True
+        except (AttributeError, OSError):
+            until = time.monotonic() + seconds
+            while True:
+                try:
+                    os.kill(self.pid, 0)
+                except ProcessLookupError:
+                    return True
+                except OSError:
+                    return False
+                if time.monotonic() >= until:
+                    return False
+                time.sleep(0.005)
+        try:
+            import select
+            return bool(select.select([handle], [], [], seconds)[0])
+        finally:
+            os.close(handle)
+
+    def poll(self) -> int | None:
+        return None if not self._gone(0.0) else (self.returncode or 0)
+
+    def wait(self, timeout: float | None = None) -> int | None:
+        if not self._gone(START_SECONDS if timeout is None else timeout):
+            raise subprocess.TimeoutExpired("figfolio twin worker", timeout or START_SECONDS)
+        return self.returncode
+
+
 class _Worker:
     """One warm worker process and the pipes to it; used by one builder thread only."""
 
     def __init__(self, preload: tuple[str, ...] = (), state_dir: Path | None = None) -> None:
-        self.proc: subprocess.Popen[bytes] | None = None
+        self.proc: subprocess.Popen[bytes] | _Twin | None = None
         self.child: int | None = None
         self.preload = preload
         self.state_dir = state_dir
         self.ready = False
 
-    def launch(self) -> None:
-        """Start the worker process without waiting for it to be warm (see ``start``)."""
+    def launch(self, twins: "list[_Worker] | None" = None) -> None:
+        """Start the worker process without waiting for it to be warm (see ``start``).
+
+        ``twins``: other workers that this one forks once it is warm (``worker.serve_twin``)
+        instead of each starting and warming a process of its own.
+        """
         args = ["--preload", ",".join(self.preload)] if self.preload else []
+        passed: list[int] = []
+        pairs = []
+        for twin in twins or []:
+            job_r, job_w = os.pipe()
+            result_r, result_w = os.pipe()
+            twin.proc, twin.ready = _Twin(job_w, result_r), False
+            passed += [job_r, result_w]
+            pairs.append(f"{job_r}:{result_w}")
+        if pairs:
+            args += ["--twins", ",".join(pairs)]
         self.ready = False
-        self.proc = subprocess.Popen([sys.executable, "-m", "figfolio.worker", *args],
-                                     stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                                     stderr=subprocess.DEVNULL,
-                                     env=worker_env(self.state_dir), start_new_session=True)
+        try:
+            self.proc = subprocess.Popen([sys.executable, "-m", "figfolio.worker", *args],
+                                         stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                         stderr=subprocess.DEVNULL, pass_fds=passed,
+                                         env=worker_env(self.state_dir), start_new_session=True)
+        finally:
+            for fd in passed:  # the worker holds them now (or nobody does: the twins see EOF)
+                os.close(fd)
 
     def start(self) -> None:
         """Launch the worker unless it is running, and wait for its 'ready'."""
-        from figfolio.worker import recv_frame
+        from figfolio.worker import ProtocolEOF, recv_frame
 
         if self.proc is None or self.proc.poll() is not None:
             self.launch()
         if self.ready:
             return
         assert self.proc is not None and self.proc.stdout is not None
-        kind, info = recv_frame(self.proc.stdout.fileno(), time.monotonic() + START_SECONDS)
+        try:
+            kind, info = recv_frame(self.proc.stdout.fileno(), time.monotonic() + START_SECONDS)
+        except ProtocolEOF:
+            if not isinstance(self.proc, _Twin):
+                raise
+            self.stop()  # the twin never came up: start a worker of its own
+            self.start()
+            return
         if kind != "ready":
             raise ExecutorError(f"a figfolio worker answered {kind!r} instead of 'ready'")
         self.ready = True
         self.warm_seconds = float(info.get("warm_seconds", 0.0))
+        if isinstance(self.proc, _Twin):
+            self.proc.pid = int(info["pid"])
 
     def run(self, job: Job, work: Path) -> RunResult:
         """Send one job and wait for its result; a dead or hung worker is replaced."""
@@ -193,9 +270,9 @@ class _Worker:
         if hung:
             return "the figfolio worker stopped answering while running this recipe; " \
                    "it was restarted"
-        how = f"signal {signal.Signals(-code).name}" if code is not None and code < 0 \
-            else f"exit status {code}"
-        return f"the figfolio worker process died ({how}) while running this recipe; " \
+        how = f" (signal {signal.Signals(-code).name})" if code is not None and code < 0 \
+            else f" (exit status {code})" if code is not None else ""
+        return f"the figfolio worker process died{how} while running this recipe; " \
                "it was restarted"
 
     def stop(self) -> int | None:
@@ -216,7 +293,10 @@ class _Worker:
             return proc.wait(timeout=STOP_SECONDS)
         except subprocess.TimeoutExpired:
             _kill_group(proc.pid)
-            return proc.wait()
+            try:
+                return proc.wait(timeout=GRACE_SECONDS)
+            except subprocess.TimeoutExpired:  # a twin that outlives SIGKILL: not ours to reap
+                return None
 
 
 class LocalExecutor:
@@ -245,16 +325,19 @@ class LocalExecutor:
     def warm(self, count: int) -> None:
         """Start up to ``count`` workers now; ``run`` waits for their 'ready' when it needs them.
 
-        Only the processes are started here (a few milliseconds); they import the rendering
-        stack while the caller does other work.
+        Only one process is started here (a few milliseconds); it imports the rendering
+        stack while the caller does other work, then forks the other idle workers as its
+        twins (``worker.serve_twin``), so the stack is imported once, not once per worker.
         """
         if self.spawn:
             return
-        for worker in self._ensure_workers(min(self.jobs, max(count, 0))):
-            if worker.proc is None:
-                try:
-                    worker.launch()
-                except OSError:  # run() starts it again and reports the failure per job
+        idle = [w for w in self._ensure_workers(min(self.jobs, max(count, 0)))
+                if w.proc is None]
+        if idle:
+            try:
+                idle[0].launch(twins=idle[1:])
+            except OSError:  # run() starts them again and reports the failure per job
+                for worker in idle:
                     worker.proc = None
 
     def run(self, jobs: list[Job], work_root: Path, on_result: Callable[[RunResult], None]
@@ -303,12 +386,13 @@ class LocalExecutor:
 
     def _abort(self, count: int) -> None:
         """Kill running recipes and their workers so the builder threads return at once."""
-        for worker in self._workers[:count]:
+        for worker in reversed(self._workers[:count]):
             _kill_group(worker.child)
             worker.stop()
 
     def close(self) -> None:
-        for worker in self._workers:
+        """Stop every worker, twins before the worker that forked them (it waits for them)."""
+        for worker in reversed(self._workers):
             worker.stop()
         self._workers = []
 
