@@ -308,3 +308,52 @@ def test_red_green_separated_by_line_style_is_not_flagged(tmp_path: Path) -> Non
     assert {"cvd-deutan", "cvd-protan"} <= codes(same)
     styled = run_audit(styled_lines("#d62728", "#2ca02c", "-", "--"), tmp_path / "b")
     assert not {"cvd-deutan", "cvd-protan", "grayscale"} & codes(styled)
+
+
+def test_previews_by_distinct_colour_equal_the_pixel_path_and_colorspacious(
+        tmp_path: Path) -> None:
+    """transform_each (one transform per distinct colour) gives the same pixels as
+    transform_pixels, and the deutan preview of a real anti-aliased chart agrees with
+    colorspacious (Machado 2009, deuteranomaly 100) for every pixel within rounding."""
+    from figfolio.audit_pixels import IMAGE_KINDS, load_rgb, transform_each, transform_pixels
+
+    fig = two_lines("#d62728", "#2ca02c", width_in=5)
+    src = tmp_path / "chart.png"
+    fig.savefig(src, dpi=100)
+    rgb = load_rgb(src, 360)
+    each = transform_each(rgb, IMAGE_KINDS, 1.0)
+    for kind in IMAGE_KINDS:
+        assert np.array_equal(each[kind], transform_pixels(rgb, kind, 1.0)), kind
+    flat = rgb.reshape(-1, 3)
+    assert len(np.unique(flat, axis=0)) > 50  # anti-aliasing: many colours, the test bites
+    ref = cspace_convert(flat / 255, {"name": "sRGB1+CVD", "cvd_type": "deuteranomaly",
+                                      "severity": 100}, "sRGB1")
+    got = each["deutan"].reshape(-1, 3) / 255
+    assert np.max(np.abs(got - np.clip(ref, 0, 1))) <= 1.5 / 255
+
+
+def test_facts_after_the_first_save_count_only_the_tick_labels_drawn(tmp_path: Path) -> None:
+    """The runner saves first, then reads the ticks that draw showed (audit_facts.TickRecorder).
+    Reference: matplotlib's public API: the locator's ticks (Axes.get_xticks) that lie inside
+    the view limits (Axes.get_xlim) are the labels a reader sees."""
+    import matplotlib.axis
+
+    from figfolio.runner_capture import save_open_figures
+
+    plt.close("all")
+    original = matplotlib.axis.Axis.__dict__["_update_ticks"]
+    fig, ax = plt.subplots(figsize=(4, 3))
+    ax.plot([0, 10], [0, 10], color="#0072B2")
+    ax.set_xlim(0.5, 9.5)
+    ax.set_xlabel("x")
+    ax.set_ylabel("y")
+    _outputs, facts, warnings = save_open_figures(tmp_path, ["png", "svg"], 72)
+    plt.close("all")
+    assert warnings == [] and len(facts) == 1
+    low, high = ax.get_xlim()
+    shown = [t for t in ax.get_xticks() if low <= t <= high]
+    xtick = [t for t in facts[0]["texts"] if t["role"] == "xtick"]
+    assert [t["count"] for t in xtick] == [len(shown)]
+    assert len(shown) < len(ax.get_xticks())  # the locator did give ticks outside the view
+    assert xtick[0]["text"] == ", ".join(f"{v:g}" for v in shown[:6])
+    assert matplotlib.axis.Axis.__dict__["_update_ticks"] is original  # patch removed

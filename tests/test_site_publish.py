@@ -5,6 +5,7 @@ import io
 import sys
 import time
 import zipfile
+import zlib
 from html.parser import HTMLParser
 from pathlib import Path
 from urllib.parse import unquote, urlsplit
@@ -153,6 +154,17 @@ def test_zip_is_reproducible_sorted_and_filtered(built, tmp_path):
         assert set(names) == {f"clinic-visits/{f}" for f in view["recipes"][0]["files"]}
         assert {i.date_time for i in zf.infolist()} == {(1980, 1, 1, 0, 0, 0)}
         assert zf.testzip() is None
+        # Deflate level 1 (site_files.ZIP_LEVEL): each entry's stored stream equals zlib's
+        # raw deflate of the file at that level (zlib is the reference compressor; the local
+        # header is 30 bytes plus name and extra field, APPNOTE 4.3.7).
+        for info in zf.infolist():
+            start = info.header_offset
+            name_len = int.from_bytes(first[start + 26:start + 28], "little")
+            extra_len = int.from_bytes(first[start + 28:start + 30], "little")
+            body = start + 30 + name_len + extra_len
+            stored = first[body:body + info.compress_size]
+            packer = zlib.compressobj(1, zlib.DEFLATED, -15)
+            assert stored == packer.compress(zf.read(info)) + packer.flush(), info.filename
 
 
 def test_report_lists_outputs_diffs_and_broken(built):

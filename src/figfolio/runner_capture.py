@@ -88,14 +88,25 @@ def _guard_canvas(max_pixels: int) -> None:
     FigureCanvasBase.print_figure = print_figure  # type: ignore[method-assign]
 
 
-def _figure_facts(fig: Any, number: int, warnings: list[str]) -> dict[str, Any] | None:
+def _tick_recorder() -> Any:
+    """audit_facts.TickRecorder, or a do-nothing context when the audit is unavailable."""
+    try:
+        from figfolio.audit_facts import TickRecorder
+    except ImportError:
+        import contextlib
+        return contextlib.nullcontext()
+    return TickRecorder()
+
+
+def _figure_facts(fig: Any, number: int, warnings: list[str], drawn: Any = None
+                  ) -> dict[str, Any] | None:
     """audit.collect_facts(fig) when the audit module provides it; its failure is not ours."""
     try:
         from figfolio.audit import collect_facts  # type: ignore[attr-defined]
     except (ImportError, AttributeError):
         return None
     try:
-        facts = dict(collect_facts(fig))
+        facts = dict(collect_facts(fig, drawn) if drawn is not None else collect_facts(fig))
     except Exception as exc:  # a bug in the audit must not break the recipe
         warnings.append(f"figure {number}: audit facts unavailable ({type(exc).__name__}: {exc})")
         return None
@@ -114,8 +125,10 @@ def save_open_figures(out: Path, formats: tuple[str, ...] | list[str], dpi: int
                       ) -> tuple[list[dict[str, Any]], list[dict[str, Any]], list[str]]:
     """Save every open figure as ``figure-<n>.<fmt>``; n counts from 1 in figure-number order.
 
-    Returns (outputs as dicts, facts per figure, warnings). Facts are collected before saving
-    because the audit wants the live artists, not the file.
+    Returns (outputs as dicts, facts per figure, warnings). Facts come from the live
+    artists, not the file, and are collected right after the first save: that draw has
+    placed the ticks, which the facts then read instead of computing them again (see
+    ``audit_facts.TickRecorder``).
     """
     import matplotlib.pyplot as plt
 
@@ -125,13 +138,23 @@ def save_open_figures(out: Path, formats: tuple[str, ...] | list[str], dpi: int
     warnings: list[str] = []
     for n, number in enumerate(sorted(plt.get_fignums()), start=1):
         fig = plt.figure(number)
-        found = _figure_facts(fig, n, warnings)
-        if found is not None:
-            facts.append(found)
-        for fmt in formats:
+        drawn = None
+        for k, fmt in enumerate(formats):
             path = out / f"figure-{n}.{fmt}"
-            _save_atomic(fig, path, fmt, dpi)
+            if k == 0:
+                with _tick_recorder() as drawn:
+                    _save_atomic(fig, path, fmt, dpi)
+            else:
+                _save_atomic(fig, path, fmt, dpi)
             outputs.append({"name": path.name, "format": fmt, "figure": n, "path": str(path)})
+            if k == 0:
+                found = _figure_facts(fig, n, warnings, drawn)
+                if found is not None:
+                    facts.append(found)
+        if not formats:
+            found = _figure_facts(fig, n, warnings)
+            if found is not None:
+                facts.append(found)
     return outputs, facts, warnings
 
 

@@ -119,18 +119,23 @@ def write_text(path: Path, text: str) -> None:
     path.write_text(text, encoding="utf-8")
 
 
+ZIP_LEVEL = 1
+
+
 def write_zip(folder: Path, files: list[str], slug: str, out: Path) -> None:
     """The recipe as one reproducible zip: ``<slug>/...``, sorted, fixed times and modes.
 
     Why fixed: the same recipe gives the same bytes on every build, so a site diff or a
-    checksum shows real changes only. Deflate level 6 (zlib's default): on the demo and
-    benchmark data level 9 took twice as long for files 0.3% smaller, and the zips are
-    written on the build's critical path.
+    checksum shows real changes only. Deflate level 1: on the 13.5 MB of demo and benchmark
+    data it took 0.14 s against 1.08 s at zlib's default level 6, for files 19% larger
+    (47% of the data against 40%); the zips are written on the build's critical path, and
+    they are downloads from the group's own server.
     """
     entries = sorted({"/".join(safe_parts(f, where=folder)) for f in files})
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = out.with_name(out.name + ".tmp")
-    with zipfile.ZipFile(tmp, "w", compression=zipfile.ZIP_DEFLATED, compresslevel=6) as zf:
+    with zipfile.ZipFile(tmp, "w", compression=zipfile.ZIP_DEFLATED, compresslevel=ZIP_LEVEL
+                         ) as zf:
         for rel in entries:
             source = folder / rel
             try:
@@ -142,7 +147,7 @@ def write_zip(folder: Path, files: list[str], slug: str, out: Path) -> None:
             info.compress_type = zipfile.ZIP_DEFLATED
             info.create_system = 3  # unix, so the mode below is honoured
             info.external_attr = (stat.S_IFREG | 0o644) << 16
-            zf.writestr(info, data)
+            zf.writestr(info, data, compresslevel=ZIP_LEVEL)  # a ZipInfo ignores the default
     os.replace(tmp, out)
 
 
