@@ -13,6 +13,7 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
+import re
 import os
 import subprocess
 import sys
@@ -534,3 +535,30 @@ def test_post_step_keeps_a_description_it_was_given(catalogue: Path, tmp_path: P
     assert record["data"] == given
     fresh = poststep.stage(RunResult(slug="line-0"), recipe, settings, tmp_path / "again")
     assert fresh["data"] == poststep.describe_data(recipe, settings) != given
+
+
+def test_site_work_done_ahead_is_what_the_pages_use(catalogue: Path) -> None:
+    """site.prepare compiles the theme into build/cache/templates and highlights the code
+    the pages then show; a script edited afterwards is highlighted afresh, not from the memo.
+    Reference: the highlighted HTML, tags stripped and entities decoded (html.unescape, the
+    HTML standard's character references), is the script's text."""
+    import html
+
+    from figfolio import markup, site
+
+    settings = load_settings(catalogue)
+    recipes, _ = discover(settings)
+    markup._HIGHLIGHTED.clear()
+    site.prepare(settings, recipes)
+    assert any((Path(settings.cache_path) / "templates").iterdir())
+    assert list(markup._HIGHLIGHTED) == [("figure.py", LINE)]  # three recipes, one text
+    shown = markup._HIGHLIGHTED[("figure.py", LINE)]
+    assert html.unescape(re.sub(r"<[^>]+>", "", shown)).strip() == LINE.strip()
+    run_pass(settings, Options(quiet=True))
+    page = (catalogue / "build" / "site" / "r" / "line-0" / "index.html").read_text()
+    assert shown in page
+    edited = LINE.replace('"Week"', '"Week number"')
+    (catalogue / "recipes" / "line-0" / "figure.py").write_text(edited)
+    run_pass(settings, Options(quiet=True))
+    page = (catalogue / "build" / "site" / "r" / "line-0" / "index.html").read_text()
+    assert markup.highlight_code(edited, "figure.py") in page and shown not in page

@@ -368,6 +368,11 @@ def _full_pass(settings: Settings, options: Options, cache: Cache,
         if executor is not None:
             executor.close()
         raise
+    if todo and options.publish and options.command != "approve":
+        t0 = time.perf_counter()  # while the workers warm up (site.prepare says why)
+        from figfolio import site
+        site.prepare(settings, todo)
+        _timed("site_prepare", time.perf_counter() - t0)
     t0 = time.perf_counter()
     outcomes, ran, cached = _execute(settings, options, recipes, cache, keys, entries, todo,
                                      executor, described)

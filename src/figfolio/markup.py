@@ -181,11 +181,27 @@ def notebook_cells(text: str) -> list[str] | None:
     return cells
 
 
+# Highlighted code by (file name, text). Why: the builder highlights the scripts of the
+# recipes about to run while its workers warm up (site.prepare), and the pages use the result.
+_HIGHLIGHTED: dict[tuple[str, str], str] = {}
+_HIGHLIGHTED_KEPT = 1024
+
+
 def highlight_code(text: str, filename: str) -> str:
     """Highlight a script as class-only spans (escaped); notebooks show their code cells.
 
     Returns the inner HTML of a ``<code>`` element; the caller wraps it.
     """
+    key = (filename, text)
+    done = _HIGHLIGHTED.get(key)
+    if done is None:
+        if len(_HIGHLIGHTED) >= _HIGHLIGHTED_KEPT:
+            _HIGHLIGHTED.clear()
+        done = _HIGHLIGHTED[key] = _highlight_code(text, filename)
+    return done
+
+
+def _highlight_code(text: str, filename: str) -> str:
     if filename.lower().endswith(".ipynb"):
         cells = notebook_cells(text)
         if cells is not None:

@@ -20,10 +20,11 @@ import shutil
 from pathlib import Path
 from typing import Any, Iterable
 
-from jinja2 import Environment
+from jinja2 import Environment, TemplateError
 
 import figfolio
 from figfolio import markup
+from figfolio.errors import FigfolioError
 from figfolio.recipe import SLUG
 from figfolio.settings import Settings
 from figfolio.site_files import (SiteError, copy_file, fork_helper, helper_succeeded,
@@ -68,6 +69,33 @@ def publish(view: dict[str, Any], settings: Settings, out: Path, *,
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+
+
+def prepare(settings: Settings, recipes: Iterable[Any]) -> None:
+    """Do ahead the site work that depends only on files: compile the theme's templates (kept
+    in build/cache/templates) and highlight the recipes' code (markup.highlight_code).
+
+    Why: a cold build waits a second or more for its workers to import the rendering stack,
+    and the builder's core is idle after the data screen; on the benchmark catalogue this is
+    about 0.45 s of the site's work, which otherwise runs after the last recipe. Errors are
+    left for ``publish``, which reports them.
+    """
+    try:
+        env = make_env(settings.root)
+        _cache_templates(env, settings)
+        for name in env.list_templates(filter_func=lambda n: n.endswith(".html")):
+            try:
+                env.get_template(name)
+            except TemplateError:
+                continue
+    except (FigfolioError, OSError):
+        return
+    for recipe in recipes:
+        try:
+            text = recipe.script.read_text(encoding="utf-8", errors="replace")
+        except OSError:
+            continue
+        markup.highlight_code(text, recipe.rel(recipe.script))
 
 
 def _cache_templates(env: Environment, settings: Settings) -> None:
