@@ -301,3 +301,31 @@ def test_remember_and_find_images(tmp_path: Path) -> None:
     assert cache.remember_image(png, digest).read_bytes() == b"pixels"   # once per digest
     with pytest.raises(ValueError):
         cache.image_for("sha256:../../x")
+
+
+@pytest.mark.parametrize("cross_device", [False, True])
+def test_store_can_move_the_staged_folder_in(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                             cross_device: bool) -> None:
+    """move=True renames the staging folder into the entry (nothing copied, nothing left);
+    on another file system (rename fails with EXDEV, rename(2)) it copies instead. Either
+    way the entry verifies against sha256 computed here with hashlib."""
+    import errno
+
+    staged = _staged(tmp_path)
+    expected = {p.relative_to(staged).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
+                for p in staged.rglob("*") if p.is_file()}
+    cache = Cache(tmp_path / "cache")
+    if cross_device:
+        real = os.replace
+
+        def refuse(src, dst):  # type: ignore[no-untyped-def]
+            if Path(src) == staged:
+                raise OSError(errno.EXDEV, "Invalid cross-device link")
+            return real(src, dst)
+        monkeypatch.setattr(cache_mod.os, "replace", refuse)
+    entry = cache.store("alpha", KEY1, staged, {"duration": 1.0}, move=True)
+    assert staged.exists() == cross_device
+    for rel, digest in expected.items():
+        assert hashlib.sha256(entry.path(rel).read_bytes()).hexdigest() == digest
+    assert cache.lookup("alpha", KEY1, verify_hashes=True) is not None
+    assert not any((tmp_path / "cache" / "tmp").iterdir())

@@ -620,7 +620,7 @@ def _store(result: RunResult, recipe: Recipe, settings: Settings, cache: Cache, 
         record = _stage(result, recipe, settings, staging, described)
         _timed("staged_in_builder", 1.0)
     _add_timings(record)
-    entry = cache.store(result.slug, key, staging, record)
+    entry = cache.store(result.slug, key, staging, record, move=True)
     shutil.rmtree(staging, ignore_errors=True)
     _timed("store", time.perf_counter() - t0)
     return entry

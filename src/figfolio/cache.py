@@ -249,8 +249,13 @@ class Cache:
         return tmp
 
     def store(self, slug: str, key: str, staged_dir: Path | None,
-              record: Mapping[str, Any]) -> Entry:
+              record: Mapping[str, Any], move: bool = False) -> Entry:
         """Copy ``staged_dir`` and ``record`` into a new entry; older keys of the slug go.
+
+        ``move``: the caller gives ``staged_dir`` up; it is renamed into the cache when it is
+        on the same file system (else copied). Why: copying each recipe's outputs and then
+        deleting the staging folder cost the builder about 17 ms a recipe in file creations,
+        unlinks and rmdirs (1.0 s over the 60-recipe benchmark catalogue).
 
         Order matters for crash safety: files, fsync, manifest last, then one rename. A
         folder without a valid manifest is never trusted by ``lookup``.
@@ -258,7 +263,12 @@ class Cache:
         target = self._entry_dir(slug, key)
         stage = self._staging()
         if staged_dir is not None and Path(staged_dir).is_dir():
-            shutil.copytree(staged_dir, stage, dirs_exist_ok=True, symlinks=False)
+            try:
+                if not move:
+                    raise OSError("copy asked for")
+                os.replace(staged_dir, stage)  # onto the empty staging folder
+            except OSError:
+                shutil.copytree(staged_dir, stage, dirs_exist_ok=True, symlinks=False)
         (stage / RECORD).write_text(json.dumps(dict(record), sort_keys=True, default=str),
                                     encoding="utf-8")
         files = _describe(stage)
