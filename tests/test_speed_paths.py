@@ -562,3 +562,93 @@ def test_site_work_done_ahead_is_what_the_pages_use(catalogue: Path) -> None:
     run_pass(settings, Options(quiet=True))
     page = (catalogue / "build" / "site" / "r" / "line-0" / "index.html").read_text()
     assert markup.highlight_code(edited, "figure.py") in page and shown not in page
+
+
+# Lists what the recipe's process has open: every pipe and socket beside stdout and stderr.
+FDS = '''
+import os
+import matplotlib.pyplot as plt
+for fd in sorted(int(n) for n in os.listdir("/proc/self/fd")):
+    try:
+        target = os.readlink(f"/proc/self/fd/{fd}")
+    except OSError:
+        continue
+    if fd > 2 and target.startswith(("pipe:", "socket:")):
+        print("open:", fd, target)
+fig, ax = plt.subplots(figsize=(3, 2))
+ax.plot([0, 1], [1, 0], color="#0072B2")
+ax.set_xlabel("x")
+ax.set_ylabel("y")
+plt.show()
+'''
+
+
+def test_one_post_server_stages_every_result_and_recipes_cannot_reach_it(
+        catalogue: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Each worker stages all its results in one post server (the same pid for every job),
+    forked from the worker, which reaps it when it stops; a recipe's process holds no pipe
+    besides its stdout and stderr (proc(5): /proc/self/fd), so it cannot talk to the server.
+    """
+    from figfolio import worker
+
+    folders = [add(catalogue, f"fds-{k}", FDS) for k in range(3)]
+    settings = load_settings(catalogue)
+    jobs = [dataclasses.replace(Job.from_recipe(load_recipe(f, settings), settings),
+                                post=poststep.PostSpec(load_recipe(f, settings), settings))
+            for f in folders]
+    posting: list[int] = []
+    real = worker.recv_frame
+
+    def spying(fd, deadline=None):  # type: ignore[no-untyped-def]
+        frame = real(fd, deadline)
+        if isinstance(frame, tuple) and frame and frame[0] == "posting":
+            posting.append(int(frame[1]))
+        return frame
+    monkeypatch.setattr(worker, "recv_frame", spying)
+    got: list[RunResult] = []
+    executor = LocalExecutor(jobs=1)
+    try:
+        executor.run(jobs, tmp_path / "work", got.append)
+        owner = executor._workers[0].proc.pid  # type: ignore[union-attr]
+        assert len(posting) == 3 and len(set(posting)) == 1
+        server = posting[0]
+        status = Path(f"/proc/{server}/status").read_text()
+        assert f"PPid:\t{owner}" in status
+    finally:
+        executor.close()
+    assert all(r.status == "ok" and r.staged is not None for r in got), [r.reason for r in got]
+    assert all("open:" not in r.stdout_tail for r in got), [r.stdout_tail for r in got]
+    assert not Path(f"/proc/{server}").exists()  # reaped by its worker, not left a zombie
+
+
+def test_a_dead_post_server_is_replaced(catalogue: Path, tmp_path: Path,
+                                        monkeypatch: pytest.MonkeyPatch) -> None:
+    """Killed between two results: the next result comes back unstaged (the builder stages
+    it itself, as for Dask), and the one after is staged by a new server."""
+    import signal
+
+    from figfolio import worker
+
+    settings = load_settings(catalogue)
+    recipe = load_recipe(catalogue / "recipes" / "line-0", settings)
+    job = dataclasses.replace(Job.from_recipe(recipe, settings),
+                              post=poststep.PostSpec(recipe, settings))
+    posting: list[int] = []
+    real = worker.recv_frame
+
+    def spying(fd, deadline=None):  # type: ignore[no-untyped-def]
+        frame = real(fd, deadline)
+        if isinstance(frame, tuple) and frame and frame[0] == "posting":
+            posting.append(int(frame[1]))
+        return frame
+    monkeypatch.setattr(worker, "recv_frame", spying)
+    with LocalExecutor(jobs=1) as executor:
+        runner = executor._ensure_workers(1)[0]
+        first = runner.run(job, tmp_path / "a")
+        assert first.staged is not None
+        os.kill(posting[-1], signal.SIGKILL)
+        second = runner.run(job, tmp_path / "b")
+        third = runner.run(job, tmp_path / "c")
+    assert second.status == "ok" and second.staged is None
+    assert third.staged is not None and posting[-1] != posting[0]
+    assert third.staged["record"]["images"] == first.staged["record"]["images"]

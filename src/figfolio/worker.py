@@ -10,10 +10,11 @@ Protocol on stdin/stdout, one frame = 8-byte big-endian length + pickle:
   worker -> builder  ("ready", {"pid", "warm_seconds"})
   builder -> worker  (Job, work_dir)
   worker -> builder  ("started", child_pid)  then, when the job carries a post step,
-                     ("posting", post_pid), then  ("result", RunResult dict)
-The post step (poststep.py: digests, thumbnails, audit, data summaries) runs in a second fresh
-fork of this warm process after the recipe's child ended, so it uses the worker's core instead
-of the builder's main thread, and never runs in a process that recipe code touched.
+                     ("posting", post_server_pid), then  ("result", RunResult dict)
+The post step (poststep.py: digests, thumbnails, audit, data summaries) runs after the recipe's
+child ended, in this worker's post server (``poststep.PostServer``, a fork of this warm process
+made before it staged anything), so it uses the worker's core instead of the builder's main
+thread, and never runs in a process that recipe code touched.
 EOF on stdin ends the worker. ``python -m figfolio.worker --one WORK`` runs the single job
 pickled in ``WORK/job.pickle`` in this very process (spawn mode, for platforms without fork).
 ``--preload a.b,c`` also imports those modules before answering "ready" (see ``PRELOADABLE``).
@@ -320,33 +321,33 @@ def serve_twin(job_in: int, result_out: int, close: list[int], warm: float) -> i
 
 def _loop(job_in: int, proto_out: int, warm: float) -> int:
     """The fork-server loop: read a job, fork, answer, until ``job_in`` closes."""
+    from figfolio.poststep import PostServer
+
     send_frame(proto_out, ("ready", {"pid": os.getpid(), "warm_seconds": warm}))
+    posts = PostServer([job_in, proto_out])
+    try:
+        return _jobs(job_in, proto_out, posts)
+    finally:
+        posts.stop()  # reaped here, so its CPU time counts with this worker's
+
+
+def _jobs(job_in: int, proto_out: int, posts: Any) -> int:
     while True:
         try:
             job, work = recv_frame(job_in)
         except ProtocolEOF:
             return 0
         try:
-            result = run_forked(job, Path(work), [0, proto_out],
+            result = run_forked(job, Path(work), [0, proto_out, *posts.fds()],
                                 lambda pid: send_frame(proto_out, ("started", pid)))
         except Exception as exc:  # a worker bug: report it as this job's failure, keep serving
             from figfolio.runner import broken
             result = broken(job.slug, f"figfolio worker error: {type(exc).__name__}: {exc}",
                             traceback=traceback.format_exc()).to_dict()
         if getattr(job, "post", None) is not None:
-            result["staged"] = post_forked(result, job, Path(work), proto_out)
+            result["staged"] = posts.stage(result, job.post, Path(work),
+                                           lambda pid: send_frame(proto_out, ("posting", pid)))
         send_frame(proto_out, ("result", result))
-
-
-def post_forked(result: dict[str, Any], job: Any, work: Path, proto_out: int
-                ) -> dict[str, Any] | None:
-    """Run the job's post step in a fresh fork; None (the builder does it) on any failure."""
-    try:
-        from figfolio.poststep import run_forked as post
-        return post(result, job.post, work,
-                    lambda pid: send_frame(proto_out, ("posting", pid)), [0, proto_out])
-    except Exception:  # noqa: BLE001 - the builder stages the result itself
-        return None
 
 
 def run_one(work: Path) -> int:
