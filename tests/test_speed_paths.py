@@ -583,28 +583,34 @@ plt.show()
 '''
 
 
-def test_one_post_server_stages_every_result_and_recipes_cannot_reach_it(
-        catalogue: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    """Each worker stages all its results in one post server (the same pid for every job),
-    forked from the worker, which reaps it when it stops; a recipe's process holds no pipe
-    besides its stdout and stderr (proc(5): /proc/self/fd), so it cannot talk to the server.
-    """
+@pytest.fixture
+def posting(monkeypatch: pytest.MonkeyPatch) -> list[int]:
+    """The pids the workers name in their "posting" frames (the post server of each job)."""
     from figfolio import worker
 
-    folders = [add(catalogue, f"fds-{k}", FDS) for k in range(3)]
-    settings = load_settings(catalogue)
-    jobs = [dataclasses.replace(Job.from_recipe(load_recipe(f, settings), settings),
-                                post=poststep.PostSpec(load_recipe(f, settings), settings))
-            for f in folders]
-    posting: list[int] = []
+    seen: list[int] = []
     real = worker.recv_frame
 
     def spying(fd, deadline=None):  # type: ignore[no-untyped-def]
         frame = real(fd, deadline)
         if isinstance(frame, tuple) and frame and frame[0] == "posting":
-            posting.append(int(frame[1]))
+            seen.append(int(frame[1]))
         return frame
     monkeypatch.setattr(worker, "recv_frame", spying)
+    return seen
+
+
+def test_one_post_server_stages_every_result_and_recipes_cannot_reach_it(
+        catalogue: Path, tmp_path: Path, posting: list[int]) -> None:
+    """Each worker stages all its results in one post server (the same pid for every job),
+    forked from the worker, which reaps it when it stops; a recipe's process holds no pipe
+    besides its stdout and stderr (proc(5): /proc/self/fd), so it cannot talk to the server.
+    """
+    folders = [add(catalogue, f"fds-{k}", FDS) for k in range(3)]
+    settings = load_settings(catalogue)
+    jobs = [dataclasses.replace(Job.from_recipe(load_recipe(f, settings), settings),
+                                post=poststep.PostSpec(load_recipe(f, settings), settings))
+            for f in folders]
     got: list[RunResult] = []
     executor = LocalExecutor(jobs=1)
     try:
@@ -622,26 +628,15 @@ def test_one_post_server_stages_every_result_and_recipes_cannot_reach_it(
 
 
 def test_a_dead_post_server_is_replaced(catalogue: Path, tmp_path: Path,
-                                        monkeypatch: pytest.MonkeyPatch) -> None:
+                                        posting: list[int]) -> None:
     """Killed between two results: the next result comes back unstaged (the builder stages
     it itself, as for Dask), and the one after is staged by a new server."""
     import signal
-
-    from figfolio import worker
 
     settings = load_settings(catalogue)
     recipe = load_recipe(catalogue / "recipes" / "line-0", settings)
     job = dataclasses.replace(Job.from_recipe(recipe, settings),
                               post=poststep.PostSpec(recipe, settings))
-    posting: list[int] = []
-    real = worker.recv_frame
-
-    def spying(fd, deadline=None):  # type: ignore[no-untyped-def]
-        frame = real(fd, deadline)
-        if isinstance(frame, tuple) and frame and frame[0] == "posting":
-            posting.append(int(frame[1]))
-        return frame
-    monkeypatch.setattr(worker, "recv_frame", spying)
     with LocalExecutor(jobs=1) as executor:
         runner = executor._ensure_workers(1)[0]
         first = runner.run(job, tmp_path / "a")
