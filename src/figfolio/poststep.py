@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import json
 import os
+import pickle
 import signal
 import time
 import traceback
@@ -26,7 +27,6 @@ from figfolio.recipe import Recipe
 from figfolio.runner import Output, RunResult
 from figfolio.settings import Settings
 
-RECORD_FILE = "post-record.json"
 STAGE_DIR = "stage"
 POST_SECONDS = 300.0  # digests, thumbnails and data summaries of one recipe; generous
 
@@ -160,18 +160,15 @@ class PostServer:
         from figfolio.worker import ProtocolEOF, recv_frame, send_frame
 
         try:
-            if self.pid is None:
-                self._start()
-            assert self.pid is not None
-            on_start(self.pid)
+            on_start(self.pid if self.pid is not None else self._start())
             send_frame(self.to_server, (result, spec, str(work)))
             return recv_frame(self.from_server, time.monotonic() + POST_SECONDS)
         except (ProtocolEOF, TimeoutError, OSError, EOFError, ValueError, TypeError,
-                AssertionError, __import__("pickle").UnpicklingError):
+                pickle.UnpicklingError):
             self.stop()
             return None
 
-    def _start(self) -> None:
+    def _start(self) -> int:
         jobs_r, jobs_w = os.pipe()
         back_r, back_w = os.pipe()
         parent = os.getpid()
@@ -196,6 +193,7 @@ class PostServer:
         os.close(jobs_r)
         os.close(back_w)
         self.pid, self.to_server, self.from_server = pid, jobs_w, back_r
+        return pid
 
     def fds(self) -> list[int]:
         """The worker's ends of the server's pipes: a recipe's process must close them, or it
