@@ -133,14 +133,14 @@ class _Twin:
     (its parent, the worker that forked it, reaps it).
 
     Its pid arrives with its 'ready' frame; until then it counts as running (if it never
-    comes up, reading its pipe ends in EOF). Its exit status is unknown to the builder.
+    comes up, reading its pipe ends in EOF). Its exit status is unknown to the builder:
+    ``poll`` says 0 once it has gone, ``wait`` None.
     """
 
     def __init__(self, to_twin: int, from_twin: int) -> None:
         self.stdin = os.fdopen(to_twin, "wb", buffering=0)
         self.stdout = os.fdopen(from_twin, "rb", buffering=0)
         self.pid: int | None = None
-        self.returncode: int | None = None
 
     def _gone(self, seconds: float) -> bool:
         """True once the twin has ended, waiting up to ``seconds``."""
@@ -169,12 +169,11 @@ class _Twin:
             os.close(handle)
 
     def poll(self) -> int | None:
-        return None if not self._gone(0.0) else (self.returncode or 0)
+        return 0 if self._gone(0.0) else None
 
-    def wait(self, timeout: float | None = None) -> int | None:
+    def wait(self, timeout: float | None = None) -> None:
         if not self._gone(START_SECONDS if timeout is None else timeout):
             raise subprocess.TimeoutExpired("figfolio twin worker", timeout or START_SECONDS)
-        return self.returncode
 
 
 class _Worker:

@@ -30,7 +30,7 @@ import sys
 import time
 import traceback
 from pathlib import Path
-from typing import Any
+from typing import Any, NoReturn
 
 HEADER = 8
 JOB_FILE = "job.pickle"
@@ -266,8 +266,8 @@ def _child(job: Any, work: Path, out_w: int, err_w: int, close: list[int]) -> No
 
 
 def serve(modules: list[str] | None = None, twins: list[tuple[int, int]] | None = None
-          ) -> int:
-    """Warm up, fork the twins, then serve jobs from stdin until it closes."""
+          ) -> NoReturn:
+    """Warm up, fork the twins, then serve jobs from stdin until it closes; then leave."""
     proto_out = os.dup(1)
     os.dup2(2, 1)  # stray prints from imports must not corrupt the protocol
     import gc
