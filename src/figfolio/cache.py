@@ -262,13 +262,9 @@ class Cache:
         """
         target = self._entry_dir(slug, key)
         stage = self._staging()
-        if staged_dir is not None and Path(staged_dir).is_dir():
-            try:
-                if not move:
-                    raise OSError("copy asked for")
-                os.replace(staged_dir, stage)  # onto the empty staging folder
-            except OSError:
-                shutil.copytree(staged_dir, stage, dirs_exist_ok=True, symlinks=False)
+        if staged_dir is not None and Path(staged_dir).is_dir() \
+                and not (move and _renamed(Path(staged_dir), stage)):
+            shutil.copytree(staged_dir, stage, dirs_exist_ok=True, symlinks=False)
         (stage / RECORD).write_text(json.dumps(dict(record), sort_keys=True, default=str),
                                     encoding="utf-8")
         files = _describe(stage)
@@ -389,6 +385,15 @@ def _remove(path: Path) -> None:
     else:
         with contextlib.suppress(FileNotFoundError):
             path.unlink()
+
+
+def _renamed(source: Path, empty_target: Path) -> bool:
+    """Rename ``source`` onto an empty folder; False when it cannot (another file system)."""
+    try:
+        os.replace(source, empty_target)
+    except OSError:
+        return False
+    return True
 
 
 def _find_duration(record: Mapping[str, Any]) -> float | None:

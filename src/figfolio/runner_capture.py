@@ -7,6 +7,7 @@ a script. Why a separate module: the kernel imports it, and it must stay light (
 from __future__ import annotations
 
 import builtins
+import contextlib
 import functools
 import json
 import os
@@ -89,11 +90,11 @@ def _guard_canvas(max_pixels: int) -> None:
 
 
 def _tick_recorder() -> Any:
-    """audit_facts.TickRecorder, or a do-nothing context when the audit is unavailable."""
+    """audit_facts.TickRecorder, or a do-nothing context when the audit is unavailable (then
+    ``_figure_facts`` has nothing to collect either)."""
     try:
         from figfolio.audit_facts import TickRecorder
     except ImportError:
-        import contextlib
         return contextlib.nullcontext()
     return TickRecorder()
 
@@ -106,7 +107,7 @@ def _figure_facts(fig: Any, number: int, warnings: list[str], drawn: Any = None
     except (ImportError, AttributeError):
         return None
     try:
-        facts = dict(collect_facts(fig, drawn) if drawn is not None else collect_facts(fig))
+        facts = dict(collect_facts(fig, drawn))
     except Exception as exc:  # a bug in the audit must not break the recipe
         warnings.append(f"figure {number}: audit facts unavailable ({type(exc).__name__}: {exc})")
         return None
@@ -126,8 +127,8 @@ def save_open_figures(out: Path, formats: tuple[str, ...] | list[str], dpi: int
     """Save every open figure as ``figure-<n>.<fmt>``; n counts from 1 in figure-number order.
 
     Returns (outputs as dicts, facts per figure, warnings). Facts come from the live
-    artists, not the file, and are collected right after the first save: that draw has
-    placed the ticks, which the facts then read instead of computing them again (see
+    artists, not the file, and are collected after the saves: the first save's draw placed
+    the ticks, which the facts then read instead of computing them again (see
     ``audit_facts.TickRecorder``).
     """
     import matplotlib.pyplot as plt
@@ -138,23 +139,15 @@ def save_open_figures(out: Path, formats: tuple[str, ...] | list[str], dpi: int
     warnings: list[str] = []
     for n, number in enumerate(sorted(plt.get_fignums()), start=1):
         fig = plt.figure(number)
-        drawn = None
+        drawn = _tick_recorder()
         for k, fmt in enumerate(formats):
             path = out / f"figure-{n}.{fmt}"
-            if k == 0:
-                with _tick_recorder() as drawn:
-                    _save_atomic(fig, path, fmt, dpi)
-            else:
+            with drawn if k == 0 else contextlib.nullcontext():
                 _save_atomic(fig, path, fmt, dpi)
             outputs.append({"name": path.name, "format": fmt, "figure": n, "path": str(path)})
-            if k == 0:
-                found = _figure_facts(fig, n, warnings, drawn)
-                if found is not None:
-                    facts.append(found)
-        if not formats:
-            found = _figure_facts(fig, n, warnings)
-            if found is not None:
-                facts.append(found)
+        found = _figure_facts(fig, n, warnings, drawn)
+        if found is not None:
+            facts.append(found)
     return outputs, facts, warnings
 
 

@@ -77,7 +77,7 @@ def prepare(settings: Settings, recipes: Iterable[Any]) -> None:
 
     Why: a cold build waits a second or more for its workers to import the rendering stack,
     and the builder's core is idle after the data screen; on the benchmark catalogue this is
-    about 0.45 s of the site's work, which otherwise runs after the last recipe. Errors are
+    0.12-0.15 s of the site's work, which otherwise runs after the last recipe. Errors are
     left for ``publish``, which reports them.
     """
     try:

@@ -146,10 +146,10 @@ def _rehearse() -> None:
 
     Why: much of a fork's cost was first-call set-up that each child rebuilt and threw away:
     fonts, mathtext and the PNG, SVG and PDF writers, the WebP codec, FFT plans, pandas' CSV
-    parser, the audit's lookup tables and code paths. Staging one output took a fresh fork 65 ms before this and 17 ms after (a 450 x 300
-    figure). The rehearsal stages figfolio's own three-point recipe in a temporary folder,
-    never recipe code, and leaves no figure open and no file behind. Any failure only means
-    the forks pay the set-up themselves.
+    parser, the audit's lookup tables and code paths. Staging one output took a fresh fork
+    65 ms before this and 17 ms after (a 450 x 300 figure). The rehearsal stages figfolio's
+    own three-point recipe in a temporary folder, never recipe code, and leaves no figure open
+    and no file behind. Any failure only means the forks pay the set-up themselves.
     """
     import io
     import shutil
