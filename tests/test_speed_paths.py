@@ -443,9 +443,43 @@ def test_worker_rehearsal_leaves_no_trace(tmp_path: Path) -> None:
     run = subprocess.run([sys.executable, "-c", REHEARSAL_CHECK], capture_output=True,
                          text=True, env=env, cwd=tmp_path, check=True)
     got = json.loads(run.stdout.strip().splitlines()[-1])
-    assert got["figures"] == [] and got["rc_changed"] == []
+    # the one setting it changes on purpose: prepared for its forks (keep_prepared)
+    assert got["figures"] == [] and got["rc_changed"] == ["svg.hashsalt"]
     assert got["cwd_same"] and got["env_same"] and got["left"] == []
     assert got["versions_ok"] and got["versions"] >= 3   # numpy, pandas, matplotlib at least
+
+
+PREPARED_CHECK = r'''
+import json
+import matplotlib
+matplotlib.use("Agg")
+from figfolio import runner_capture
+calls = []
+real = matplotlib.rcdefaults
+matplotlib.rcdefaults = lambda: (calls.append(1), real())[-1]
+matplotlib.rcParams["lines.linewidth"] = 7.0   # a state the worker must undo once
+runner_capture.keep_prepared(10**8)             # the warm worker, before it forks
+kept = len(calls)
+skip = ("svg.hashsalt", "backend", "backend_fallback", "interactive")
+same = all(repr(matplotlib.rcParams[k]) == repr(v)
+           for k, v in matplotlib.rcParamsDefault.items() if k not in skip)
+runner_capture.prepare_matplotlib(10**8)        # a fork's recipe: trusts its parent
+first = len(calls)
+runner_capture.prepare_matplotlib(10**8)        # another recipe in the same process
+print(json.dumps({"kept": kept, "first": first, "second": len(calls), "defaults": same,
+                  "salt": matplotlib.rcParams["svg.hashsalt"] == runner_capture.SVG_SALT}))
+'''
+
+
+def test_forks_trust_the_worker_prepared_matplotlib_once(tmp_path: Path) -> None:
+    """The warm worker resets matplotlib to its defaults once (``keep_prepared``) so a forked
+    recipe skips ``rcdefaults``; the mark is used up by that recipe, so a second recipe in one
+    process resets again. Reference for "defaults": matplotlib's own ``rcParamsDefault``."""
+    run = subprocess.run([sys.executable, "-c", PREPARED_CHECK], capture_output=True,
+                         text=True, env=dict(os.environ, MPLBACKEND="Agg"), cwd=tmp_path,
+                         check=True)
+    got = json.loads(run.stdout.strip().splitlines()[-1])
+    assert got == {"kept": 1, "first": 1, "second": 2, "defaults": True, "salt": True}
 
 
 def test_worker_freezes_its_heap_and_children_collect_garbage(tmp_path: Path) -> None:

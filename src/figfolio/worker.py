@@ -117,6 +117,8 @@ def warm_up(modules: list[str] | None = None) -> float:
     import platform
     platform.platform()  # cached by the platform module; every run's provenance asks for it
     figfolio.runner_capture.remember_loaded_versions()
+    from figfolio.fingerprint import DEFAULT_MAX_PIXELS
+    figfolio.runner_capture.keep_prepared(DEFAULT_MAX_PIXELS)
     return time.perf_counter() - start
 
 
