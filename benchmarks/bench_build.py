@@ -13,6 +13,9 @@ contenders in one run so machine noise hits them alike:
       with Agg, saving like (a), interpreter start included); and as ``figfolio serve`` does
       it, on workers kept warm since the server started;
   (f) peak memory of the builder and of its biggest child; (g) the audit's and the site's share.
+Also a lower bound for (c) on this machine (``limits``): importing the stack once, every script
+in a fresh fork of a warm interpreter (the "forked floor": what isolating each recipe costs,
+measured without figfolio), and figfolio's post step, spread perfectly over the cores.
 Scale run: 1,000 tiny recipes for the no-op and site-rendering figures; search timing in
 headless Chromium over a 5,000-recipe index (``search_timing.py``).
 
@@ -63,21 +66,42 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt
 import numpy, pandas, scipy.cluster.hierarchy, scipy.stats, statsmodels.api
 plt.show = lambda *a, **k: None
-formats = sys.argv[1].split(",")
-out = sys.argv[2]
-times = []
-for folder in sys.argv[3:]:
+mode, formats, out = sys.argv[1], sys.argv[2].split(","), sys.argv[3]
+def body(folder):
     os.chdir(folder)
-    t0 = time.perf_counter()
     runpy.run_path("figure.py", run_name="__main__")
     for n in plt.get_fignums():
         fig = plt.figure(n)
         for fmt in formats:
             fig.savefig(f"{out}/{os.path.basename(folder)}-{n}.{fmt}", dpi=150)
     plt.close("all")
+times = []
+if mode == "forked":  # the best a fork server could start from: every script run once here
+    import gc         # (all lazy imports and caches warm), the heap frozen for the children
+    for folder in sys.argv[4:]:
+        body(folder)
+    gc.collect()
+    gc.freeze()
+for folder in sys.argv[4:]:
+    t0 = time.perf_counter()
+    if mode == "forked":  # a fresh child per script, as a fork server runs them; nothing more
+        pid = os.fork()
+        if pid == 0:
+            try:
+                body(folder)
+            finally:
+                os._exit(0)
+        os.waitpid(pid, 0)
+    else:
+        body(folder)
     times.append(time.perf_counter() - t0)
 print(json.dumps(times))
 '''
+
+# The stack every benchmark recipe imports; a fork server must import it once, serially, before
+# its first child can start. Timed in a fresh interpreter, as the worker's warm-up begins.
+STACK = ("import matplotlib; matplotlib.use('Agg'); import matplotlib.pyplot, numpy, pandas, "
+         "scipy.cluster.hierarchy, scipy.stats, statsmodels.api")
 
 BUILDER = r'''
 import json, resource, sys, time
@@ -136,26 +160,32 @@ def python() -> str:
     return sys.executable
 
 
-def naive(root: Path, formats: str) -> float:
-    """(a): one fresh interpreter per recipe, serially; then digests and thumbnails."""
+def naive(root: Path, formats: str) -> tuple[float, float]:
+    """(a): one fresh interpreter per recipe, serially; then digests and thumbnails.
+
+    Returns (seconds, of which the digests and thumbnails).
+    """
     from PIL import Image
     import hashlib
 
     out = Path(tempfile.mkdtemp(prefix="naive-"))
+    post = 0.0
     t0 = time.perf_counter()
     for folder in sorted((root / "recipes").iterdir()):
         target = out / folder.name
         target.mkdir()
         subprocess.run([python(), "-c", NAIVE, formats, str(target)], cwd=folder, check=True,
                        env=dict(os.environ, MPLBACKEND="Agg"), capture_output=True)
+        t1 = time.perf_counter()
         for png in target.glob("*.png"):
             with Image.open(png) as img:
                 hashlib.sha256(img.convert("RGBA").tobytes()).hexdigest()
                 img.thumbnail((320, 320))
                 img.save(target / f"thumb-{png.name}")
+        post += time.perf_counter() - t1
     seconds = time.perf_counter() - t0
     shutil.rmtree(out, ignore_errors=True)
-    return seconds
+    return seconds, post
 
 
 def import_seconds(root: Path, times: int = 3) -> float:
@@ -178,21 +208,39 @@ def import_seconds(root: Path, times: int = 3) -> float:
     return total
 
 
-def floor(root: Path, formats: str) -> tuple[float, float]:
-    """(b): the scripts alone in one warm interpreter: (sum of their times, CPU seconds)."""
+def floor(root: Path, formats: str, mode: str = "inline") -> tuple[float, float]:
+    """(b): the scripts alone in one warm interpreter: (sum of their times, CPU seconds).
+
+    ``mode="forked"``: each script in a fresh fork of that interpreter, timed from the fork to
+    the reaping of the child, after every script ran once in the parent and its heap was
+    frozen (``gc.freeze``): the best start any fork server could have. The difference from the
+    inline floor is what isolating each recipe in its own process costs on this machine (fork,
+    copy-on-write, exit), measured without any figfolio code.
+    """
     import resource
 
     out = Path(tempfile.mkdtemp(prefix="floor-"))
     folders = [str(p) for p in sorted((root / "recipes").iterdir())]
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
-    run = subprocess.run([python(), "-c", FLOOR, formats, str(out), *folders], check=True,
-                         capture_output=True, text=True,
+    run = subprocess.run([python(), "-c", FLOOR, mode, formats, str(out), *folders],
+                         check=True, capture_output=True, text=True,
                          env=dict(os.environ, MPLBACKEND="Agg", OPENBLAS_NUM_THREADS="1",
                                   OMP_NUM_THREADS="1", MKL_NUM_THREADS="1"))
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     shutil.rmtree(out, ignore_errors=True)
     cpu = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
     return sum(json.loads(run.stdout.strip().splitlines()[-1])), cpu
+
+
+def stack_seconds(times: int = 3) -> float:
+    """Median wall time of a fresh interpreter that imports the recipes' stack and ends."""
+    runs = []
+    for _ in range(times):
+        t0 = time.perf_counter()
+        subprocess.run([python(), "-c", STACK], check=True, capture_output=True,
+                       env=dict(os.environ, MPLBACKEND="Agg", OPENBLAS_NUM_THREADS="1"))
+        runs.append(time.perf_counter() - t0)
+    return statistics.median(runs)
 
 
 def parallel_speedup(copies: int = CORES) -> float:
@@ -327,18 +375,24 @@ def main_catalogue(figures: dict, work: Path, n: int, rounds: int, skip_naive: b
     sizes = [f.stat().st_size for f in (all_root / "recipes").glob("*/data/*")]
     figures["data_kb_min"], figures["data_kb_max"] = min(sizes) / 1024, max(sizes) / 1024
     runs: dict[str, list[float]] = {k: [] for k in ("naive_png", "cold_png", "floor_png_serial",
-                                                     "floor_all_serial", "floor_all_cpu",
-                                                     "cold_all")}
+                                                     "forked_png_serial", "floor_all_serial",
+                                                     "floor_all_cpu", "forked_all_serial",
+                                                     "cold_all", "stack", "naive_post")}
     detail: dict = {}
     for r in range(rounds):  # alternate the contenders so noise hits them alike
         if not skip_naive:
-            runs["naive_png"].append(naive(png_root, "png"))
+            seconds, post = naive(png_root, "png")
+            runs["naive_png"].append(seconds)
+            runs["naive_post"].append(post)
         detail["cold_png"] = cold(png_root)
         runs["cold_png"].append(detail["cold_png"]["wall"])
         runs["floor_png_serial"].append(floor(png_root, "png")[0])
+        runs["forked_png_serial"].append(floor(png_root, "png", "forked")[0])
         serial, cpu = floor(all_root, "png,svg,pdf")
         runs["floor_all_serial"].append(serial)
         runs["floor_all_cpu"].append(cpu)
+        runs["forked_all_serial"].append(floor(all_root, "png,svg,pdf", "forked")[0])
+        runs["stack"].append(stack_seconds())
         detail["cold_all"] = cold(all_root)
         runs["cold_all"].append(detail["cold_all"]["wall"])
         print(f"round {r + 1}: " + ", ".join(f"{k} {v[-1]:.1f} s" for k, v in runs.items()
@@ -360,12 +414,16 @@ def main_catalogue(figures: dict, work: Path, n: int, rounds: int, skip_naive: b
         "ratio_cpu_cold_over_floor_all": cold_all["cpu_s"] / med["floor_all_cpu"],
         "cold_all_counts": cold_all["counts"],
     })
+    limits(figures, med, detail, n)
     if "naive_png" in med:
         imports = import_seconds(png_root)
         figures.update({"naive_png_s": med["naive_png"],
                         "naive_import_s": imports,
                         "naive_import_share": imports / med["naive_png"],
-                        "ratio_cold_over_naive_png": med["cold_png"] / med["naive_png"]})
+                        "ratio_cold_over_naive_png": med["cold_png"] / med["naive_png"],
+                        "ratio_limit_over_naive_png": figures["limit_png_s"] / med["naive_png"],
+                        "ratio_bare_limit_over_naive_png":
+                            figures["bare_limit_png_s"] / med["naive_png"]})
     noop = builder(all_root)
     noop_cli = statistics.median(cli_seconds(all_root, "build") for _ in range(3))
     changed, own, hand = change_one(all_root)
@@ -394,6 +452,39 @@ def main_catalogue(figures: dict, work: Path, n: int, rounds: int, skip_naive: b
         "site_s": t.get("site", 0.0), "site_share_of_wall": t.get("site", 0.0) / t["total"],
         "timings_cold_all": t,
     })
+
+
+def limits(figures: dict, med: dict, detail: dict, n: int) -> None:
+    """The fastest a cold build that isolates each recipe in a fork can be on this machine.
+
+    A lower bound from parts measured in the same rounds: importing the stack once
+    (``stack_seconds``: no recipe can start in a fork before it), then every script in a fresh
+    fork of a warm interpreter (the forked floor) and a post step, spread perfectly over the
+    cores. Two post steps: figfolio's own as it measured it (digests, perceptual hash, two
+    thumbnails, audit previews, data summaries), and the bare one the naive contender does
+    (one decode, a digest and one thumbnail a figure). Both leave out the builder, the site,
+    the pipes and any idle core, so a real build is always slower.
+    """
+    bare = med.get("naive_post")
+    for fmt in ("png", "all"):
+        t = detail[f"cold_{fmt}"]["timings"]
+        post = sum(t.get(k, 0.0) for k in ("digests", "audit", "data"))
+        forked = med[f"forked_{fmt}_serial"]
+        limit = med["stack"] + forked / CORES + post / CORES
+        figures.update({
+            f"forked_floor_{fmt}_s": forked / CORES,
+            f"isolation_ms_per_recipe_{fmt}": 1000 * (forked - med[f"floor_{fmt}_serial"]) / n,
+            f"post_step_{fmt}_cpu_s": post,
+            f"limit_{fmt}_s": limit,
+            f"ratio_cold_over_limit_{fmt}": med[f"cold_{fmt}"] / limit})
+        if bare is not None:
+            figures[f"bare_limit_{fmt}_s"] = med["stack"] + forked / CORES + bare / CORES
+    figures["stack_import_s"] = med["stack"]
+    figures["ratio_limit_over_floor_all"] = figures["limit_all_s"] / figures["floor_all_s"]
+    if bare is not None:
+        figures["naive_post_s"] = bare
+        figures["ratio_bare_limit_over_floor_all"] = \
+            figures["bare_limit_all_s"] / figures["floor_all_s"]
 
 
 def scale_run(figures: dict, work: Path, count: int) -> None:
@@ -433,7 +524,11 @@ def report(figures: dict) -> None:
         elif not isinstance(value, dict):
             print(f"{key:36s} {value}")
     targets = [("cold/naive (png)", "ratio_cold_over_naive_png", 0.15),
+               ("  limit/naive (png)", "ratio_limit_over_naive_png", 0.15),
+               ("  bare limit/naive (png)", "ratio_bare_limit_over_naive_png", 0.15),
                ("cold/floor (all formats)", "ratio_cold_over_floor_all", 1.15),
+               ("  limit/floor (all formats)", "ratio_limit_over_floor_all", 1.15),
+               ("  bare limit/floor (all formats)", "ratio_bare_limit_over_floor_all", 1.15),
                ("no-op at scale (s)", "scale_noop_s", 0.5),
                ("one changed minus own run (s)", "one_changed_over_own_s", 1.0),
                ("  the same, serve's warm pool (s)", "one_changed_warm_pool_over_own_s", 1.0),
