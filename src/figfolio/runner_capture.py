@@ -26,6 +26,10 @@ class CanvasTooLarge(Exception):
     """A figure would be rendered at an absurd pixel size; refused before any memory is spent."""
 
 
+# True in a warm worker that prepared matplotlib (keep_prepared) and ran nothing since.
+_prepared = False
+
+
 def prepare_matplotlib(max_pixels: int) -> None:
     """Put matplotlib and Pillow in a known state before the recipe runs.
 
@@ -52,9 +56,6 @@ def prepare_matplotlib(max_pixels: int) -> None:
         Image.MAX_IMAGE_PIXELS = max_pixels
     except ImportError:  # Pillow is a dependency, but the guard must not depend on it
         pass
-
-
-_prepared = False
 
 
 def keep_prepared(max_pixels: int) -> None:
