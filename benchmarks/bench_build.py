@@ -196,16 +196,18 @@ def import_seconds(root: Path, times: int = 3) -> float:
         head = "\n".join(line for line in script.read_text().splitlines()
                          if line.startswith(("import ", "from ")))
         by_script[head] = by_script.get(head, 0) + 1
-    total = 0.0
-    for head, count in by_script.items():
-        runs = []
-        for _ in range(times):
-            t0 = time.perf_counter()
-            subprocess.run([python(), "-c", head], check=True, capture_output=True,
-                           env=dict(os.environ, MPLBACKEND="Agg"))
-            runs.append(time.perf_counter() - t0)
-        total += statistics.median(runs) * count
-    return total
+    return sum(fresh_seconds(head, times) * count for head, count in by_script.items())
+
+
+def fresh_seconds(code: str, times: int = 3, **env: str) -> float:
+    """Median wall time of a fresh interpreter that runs ``code`` (Agg backend) and ends."""
+    runs = []
+    for _ in range(times):
+        t0 = time.perf_counter()
+        subprocess.run([python(), "-c", code], check=True, capture_output=True,
+                       env=dict(os.environ, MPLBACKEND="Agg", **env))
+        runs.append(time.perf_counter() - t0)
+    return statistics.median(runs)
 
 
 def floor(root: Path, formats: str, mode: str = "inline") -> tuple[float, float]:
@@ -234,13 +236,7 @@ def floor(root: Path, formats: str, mode: str = "inline") -> tuple[float, float]
 
 def stack_seconds(times: int = 3) -> float:
     """Median wall time of a fresh interpreter that imports the recipes' stack and ends."""
-    runs = []
-    for _ in range(times):
-        t0 = time.perf_counter()
-        subprocess.run([python(), "-c", STACK], check=True, capture_output=True,
-                       env=dict(os.environ, MPLBACKEND="Agg", OPENBLAS_NUM_THREADS="1"))
-        runs.append(time.perf_counter() - t0)
-    return statistics.median(runs)
+    return fresh_seconds(STACK, times, OPENBLAS_NUM_THREADS="1")
 
 
 def parallel_speedup(copies: int = CORES) -> float:
@@ -490,26 +486,25 @@ def limits(runs: dict[str, list[float]], fmt: str, bare: bool = False) -> list[f
 
 def round_ratios(runs: dict[str, list[float]]) -> dict[str, list[float]]:
     """The ratios the targets name, one per round (contenders of the same round paired)."""
+    def over(a: list[float], b: list[float]) -> list[float]:
+        return [round(x / y, 4) for x, y in zip(a, b)]
+
     floor_png = [f / CORES for f in runs["floor_png_serial"]]
     floor_all = [f / CORES for f in runs["floor_all_serial"]]
-    out = {
-        "cold_over_floor_png": [c / f for c, f in zip(runs["cold_png"], floor_png)],
-        "cold_over_floor_all": [c / f for c, f in zip(runs["cold_all"], floor_all)],
-        "limit_over_floor_all": [x / f for x, f in zip(limits(runs, "all"), floor_all)],
-        "cold_over_limit_png": [c / x for c, x in zip(runs["cold_png"], limits(runs, "png"))],
-        "cold_over_limit_all": [c / x for c, x in zip(runs["cold_all"], limits(runs, "all"))],
-    }
+    limit_png, limit_all = limits(runs, "png"), limits(runs, "all")
+    out = {"cold_over_floor_png": over(runs["cold_png"], floor_png),
+           "cold_over_floor_all": over(runs["cold_all"], floor_all),
+           "limit_over_floor_all": over(limit_all, floor_all),
+           "cold_over_limit_png": over(runs["cold_png"], limit_png),
+           "cold_over_limit_all": over(runs["cold_all"], limit_all)}
     if runs["naive_png"]:
-        naive_png = runs["naive_png"]
-        out.update({
-            "cold_over_naive_png": [c / v for c, v in zip(runs["cold_png"], naive_png)],
-            "limit_over_naive_png": [x / v for x, v in zip(limits(runs, "png"), naive_png)],
-            "bare_limit_over_naive_png": [x / v for x, v in
-                                          zip(limits(runs, "png", bare=True), naive_png)],
-            "bare_limit_over_floor_all": [x / f for x, f in
-                                          zip(limits(runs, "all", bare=True), floor_all)],
-        })
-    return {k: [round(x, 4) for x in v] for k, v in out.items()}
+        out.update({"cold_over_naive_png": over(runs["cold_png"], runs["naive_png"]),
+                    "limit_over_naive_png": over(limit_png, runs["naive_png"]),
+                    "bare_limit_over_naive_png": over(limits(runs, "png", bare=True),
+                                                      runs["naive_png"]),
+                    "bare_limit_over_floor_all": over(limits(runs, "all", bare=True),
+                                                      floor_all)})
+    return out
 
 
 def scale_run(figures: dict, work: Path, count: int) -> None:

@@ -435,6 +435,7 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
 
     ``described``: data descriptions the builder already made (``screen_all``), by slug.
     """
+    described = described or {}
     repeat = max(options.repeat, 1)
     progress = Progress(len(recipes), options.command, quiet=options.quiet)
     for slug in entries:
@@ -449,7 +450,7 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
             # workers in parallel; later --repeat rounds are only compared, so they need no
             # post step.
             staged_jobs = [dataclasses.replace(j, post=PostSpec(
-                by_slug[j.slug], settings, (described or {}).get(j.slug))) for j in jobs]
+                by_slug[j.slug], settings, described.get(j.slug))) for j in jobs]
             work = Path(tempfile.mkdtemp(prefix="work-", dir=_tmp_dir(cache)))
             marks = _catalogue_marks(settings)
             assert executor is not None, "_started_executor makes one whenever todo is not empty"
@@ -459,7 +460,7 @@ def _execute(settings: Settings, options: Options, recipes: list[Recipe], cache:
                     if k == 0:
                         entries[result.slug] = _store(result, by_slug[result.slug], settings,
                                                       cache, keys[result.slug],
-                                                      (described or {}).get(result.slug))
+                                                      described.get(result.slug))
                         if repeat == 1:
                             progress.step(result.slug, result.status)
                     elif k == repeat - 1:
